@@ -1,0 +1,59 @@
+"""switchlaw: phenotype switching laws derived from information theory.
+
+Research software, not a medical device.
+"""
+
+from ._errors import InfeasibleError, InputError
+from .decision import (
+    Capacity,
+    CriticalBeta,
+    LinearConstraint,
+    Policy,
+    Sensitivity,
+    Tradeoff,
+    beta_from_cost,
+    capacity,
+    cost_from_beta,
+    first_critical_beta,
+    max_information_bits,
+    sensitivity,
+    solve,
+    solve_budget,
+    tradeoff,
+)
+from .information import (
+    NATS_PER_BIT,
+    conditional_entropy,
+    entropy,
+    kl_divergence,
+    mutual_information,
+    to_bits,
+)
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Capacity",
+    "CriticalBeta",
+    "InfeasibleError",
+    "InputError",
+    "LinearConstraint",
+    "NATS_PER_BIT",
+    "Policy",
+    "Sensitivity",
+    "Tradeoff",
+    "beta_from_cost",
+    "capacity",
+    "conditional_entropy",
+    "cost_from_beta",
+    "entropy",
+    "first_critical_beta",
+    "kl_divergence",
+    "max_information_bits",
+    "mutual_information",
+    "sensitivity",
+    "solve",
+    "solve_budget",
+    "to_bits",
+    "tradeoff",
+]

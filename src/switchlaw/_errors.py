@@ -1,0 +1,14 @@
+"""Exception types raised at switchlaw's public boundary."""
+
+__all__ = ["InputError", "InfeasibleError"]
+
+
+class InputError(ValueError):
+    """An argument breaks a documented rule.
+
+    The message names the argument, the rule and the value received, on one line.
+    """
+
+
+class InfeasibleError(InputError):
+    """The requested problem has no solution (for example a budget beyond what is possible)."""

@@ -1,0 +1,214 @@
+"""Minimum-information decisions: minimise ``I(X;Y) - beta E[u]``.
+
+The stationary point is ``q(x|y) = r(x) exp(beta u(y,x)) / Z(y)`` with ``r`` the marginal of
+``q`` (Blahut 1972; Arimoto 1972). With ``payoff = -distortion`` this is rate–distortion theory.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.optimize import brentq
+
+from ._blahut_arimoto import blahut_arimoto_marginal
+from ._marginal_newton import MarginalResult, newton_marginal
+from ._problem import Reduced, policy_from_marginal
+
+METHODS = ("newton", "blahut-arimoto")
+
+
+def best_on_average(payoff: np.ndarray, env: np.ndarray) -> np.ndarray:
+    """Mask of the phenotypes whose mean payoff ``E[u(Y, x)]`` is largest (ties included)."""
+    means = env @ payoff
+    return means >= means.max() - 1e-12 * max(1.0, abs(means.max()))
+
+
+def first_critical_beta_of(payoff: np.ndarray, env: np.ndarray) -> float:
+    """Smallest beta at which a second phenotype enters (``inf`` if none ever does).
+
+    Kuhn–Tucker conditions of the min-information problem (Blahut 1972): the deterministic
+    policy on ``x* = argmax_x E[u(Y, x)]`` stays optimal while
+    ``sum_y p(y) exp(beta (u(y,x) - u(y,x*))) <= 1`` for every ``x``. Each left side is a convex
+    function of beta equal to one at zero, so its positive root is found by bracketing.
+    """
+    keep = env > 0
+    u, p = payoff[keep], env[keep]
+    best = best_on_average(u, p)
+    if best.sum() > 1:
+        gaps_to_best = u[:, best] - u[:, best][:, :1]
+        if np.any(gaps_to_best != 0):
+            return 0.0
+    star = int(np.argmax(best))
+    log_p = np.log(p)
+    roots = [np.inf]
+
+    def logsumexp(a):
+        top = a.max()
+        return top + np.log(np.exp(a - top).sum())
+
+    for x in range(u.shape[1]):
+        delta = u[:, x] - u[:, star]
+        if x == star or delta.max() <= 0:
+            continue
+        if p @ delta >= 0:  # equal means but a different payoff: enters at once
+            return 0.0
+
+        def excess(beta, delta=delta):
+            return float(logsumexp(log_p + beta * delta))
+
+        upper = 1.0
+        while excess(upper) <= 0:
+            upper *= 2.0
+        lower = upper / 2.0
+        while excess(lower) > 0 and lower > 1e-300:
+            upper, lower = lower, lower / 2.0
+        roots.append(brentq(excess, lower, upper, xtol=1e-300, rtol=4 * np.finfo(float).eps))
+    return float(min(roots))
+
+
+def stays_deterministic(payoff: np.ndarray, env: np.ndarray, beta: float) -> bool:
+    """Whether the single best-on-average phenotype is optimal at ``beta`` (Kuhn–Tucker test).
+
+    ``sum_y p(y) exp(beta (u(y,x) - u(y,x*))) <= 1`` for every ``x`` (Blahut 1972); a tie in the
+    best mean payoff between different columns fails the test for every ``beta > 0``.
+    """
+    keep = env > 0
+    u, p = payoff[keep], env[keep]
+    best = best_on_average(u, p)
+    if best.sum() > 1:
+        return False
+    star = int(np.argmax(best))
+    exponent = beta * (u - u[:, star : star + 1])
+    top = exponent.max(axis=0)
+    with np.errstate(under="ignore"):
+        log_c = top + np.log(p @ np.exp(exponent - top))
+    return bool(np.all(log_c <= 1e-14))
+
+
+def first_critical_beta(payoff, env) -> float:
+    """The smallest beta at which the min-information policy starts to use a second phenotype.
+
+    Below it the cell ignores the environment and always takes ``x* = argmax_x E[u(Y, x)]``.
+    Exact (root of a one-dimensional convex function; Kuhn–Tucker conditions, Blahut 1972).
+    ``inf`` if ``x*`` is never left (every other phenotype is dominated), ``0`` for a tie in the
+    best mean payoff between phenotypes that differ somewhere.
+
+    Parameters
+    ----------
+    payoff : array_like, shape (states, phenotypes)
+    env : array_like, shape (states,), or an environment with ``.probs``
+
+    Examples
+    --------
+    Bernoulli(0.2) source with Hamming distortion: ``ln((1 - p) / p) = ln 4``.
+
+    >>> round(first_critical_beta([[0.0, -1.0], [-1.0, 0.0]], [0.8, 0.2]), 12)
+    1.386294361120
+    """
+    from .._validate import as_distribution, as_payoff
+
+    p = as_distribution(env, "env")
+    u = as_payoff(payoff, p.size)
+    if u.shape[1] == 1:
+        return float("inf")
+    return first_critical_beta_of(_unique_phenotypes(u)[0], p)
+
+
+def _unique_phenotypes(payoff: np.ndarray):
+    """Merge phenotypes with identical payoff columns (they share mass equally)."""
+    columns, first, inverse, counts = np.unique(
+        payoff.T, axis=0, return_index=True, return_inverse=True, return_counts=True
+    )
+    order = np.argsort(first)
+    columns = columns[order]
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    inverse = rank[inverse.ravel()]
+    return columns.T, inverse, counts[order]
+
+
+def solve_marginal(
+    payoff: np.ndarray,
+    env: np.ndarray,
+    beta: float,
+    *,
+    method: str = "newton",
+    start: np.ndarray | None = None,
+    allowed: np.ndarray | None = None,
+    tol: float = 1e-12,
+    max_iter: int | None = None,
+) -> MarginalResult:
+    """Optimal marginal for distinct phenotype columns (no duplicate columns expected)."""
+    n = payoff.shape[1]
+    allowed = np.ones(n, dtype=bool) if allowed is None else allowed
+    if start is None:
+        start = allowed / allowed.sum()
+    problem = Reduced.build(payoff, env, beta)
+    if method == "newton":
+        result = newton_marginal(
+            problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500
+        )
+        if result.converged:
+            return result
+        fallback = blahut_arimoto_marginal(problem, result.marginal, allowed=allowed, tol=tol)
+        return MarginalResult(
+            fallback.marginal,
+            fallback.gap_nats,
+            result.iterations + fallback.iterations,
+            fallback.converged,
+            f"{result.message}; Blahut–Arimoto fallback: {fallback.message}",
+        )
+    return blahut_arimoto_marginal(
+        problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 100_000
+    )
+
+
+def minimum_information_marginal(
+    payoff: np.ndarray,
+    env: np.ndarray,
+    beta: float,
+    *,
+    method: str = "newton",
+    start: np.ndarray | None = None,
+    tol: float = 1e-12,
+    max_iter: int | None = None,
+    distinct_columns: tuple | None = None,
+) -> tuple[np.ndarray, MarginalResult, str]:
+    """Optimal marginal over all phenotypes (duplicates merged), and the status word.
+
+    Returns the marginal over the original phenotypes, the solver record, and ``status``.
+    ``distinct_columns`` is ``_unique_phenotypes(payoff)`` when the caller already has it.
+    """
+    n = payoff.shape[1]
+    if n == 1:
+        return np.ones(1), MarginalResult(np.ones(1), 0.0, 0, True, "single phenotype"), "closed-form"
+    if beta == 0:
+        best = best_on_average(payoff, env)
+        r = best / best.sum()
+        record = MarginalResult(r, 0.0, 0, True, "beta = 0: every phenotype on the best mean payoff")
+        return r, record, "closed-form"
+    distinct, inverse, counts = distinct_columns or _unique_phenotypes(payoff)
+    if stays_deterministic(distinct, env, beta):
+        r_distinct = np.zeros(distinct.shape[1])
+        r_distinct[int(np.argmax(best_on_average(distinct, env)))] = 1.0
+        record = MarginalResult(
+            r_distinct, 0.0, 0, True,
+            "below the first critical beta: one phenotype (Kuhn–Tucker conditions)",
+        )
+        status = "closed-form"
+    else:
+        if start is not None:
+            start = np.bincount(inverse, weights=start, minlength=distinct.shape[1])
+            if start.sum() <= 0:
+                start = None
+        record = solve_marginal(
+            distinct, env, beta, method=method, start=start, tol=tol, max_iter=max_iter
+        )
+        r_distinct = record.marginal
+        status = "converged" if record.converged else "not-converged"
+    r = r_distinct[inverse] / counts[inverse]
+    return r, record, status
+
+
+def policy_for_marginal(payoff: np.ndarray, beta: float, r: np.ndarray) -> np.ndarray:
+    """The Gibbs policy of the min-information problem for marginal ``r``."""
+    return policy_from_marginal(payoff, beta, r)

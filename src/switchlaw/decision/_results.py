@@ -1,0 +1,205 @@
+"""Result objects of the decision solvers: frozen, labelled, with a readable summary."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+def _fmt(value: float) -> str:
+    return f"{value:.6g}"
+
+
+@dataclass(frozen=True, repr=False)
+class Policy:
+    """A phenotype decision policy ``q(x | y)`` and what it achieves.
+
+    Attributes
+    ----------
+    probs : ndarray, shape (states, phenotypes)
+        ``probs[y, x] = q(x | y)``; every row sums to one.
+    marginal : ndarray, shape (phenotypes,)
+        Phenotype fractions ``r(x) = sum_y p(y) q(x | y)``.
+    information_bits : float
+        Mutual information ``I(X; Y)`` between state and phenotype (bits).
+    conditional_entropy_bits : float
+        ``H(X | Y)`` (bits).
+    expected_payoff : float
+        ``E[u] = sum_y p(y) sum_x q(x|y) u(y, x)`` (payoff units).
+    beta : float
+        Lagrange multiplier of the information term (nats per payoff unit); ``inf`` when a
+        budget does not bind.
+    objective : str
+        ``"min-information"`` or ``"max-entropy"``.
+    converged, iterations, status, message :
+        Solver outcome. ``status`` is one of ``"converged"``, ``"closed-form"``,
+        ``"budget-slack"``, ``"not-converged"``.
+    gap_nats : float
+        Certified upper bound on the objective's distance from its optimum (nats); 0 for
+        closed forms; the solver's own tolerance report for conic solves.
+    method : str
+        Which algorithm produced the policy.
+    """
+
+    probs: np.ndarray
+    marginal: np.ndarray
+    information_bits: float
+    conditional_entropy_bits: float
+    expected_payoff: float
+    beta: float
+    objective: str
+    converged: bool
+    iterations: int
+    status: str
+    message: str
+    gap_nats: float = 0.0
+    method: str = ""
+
+    @property
+    def phenotypes_in_use(self) -> tuple[int, ...]:
+        """Indices of phenotypes with a positive marginal."""
+        return tuple(int(i) for i in np.flatnonzero(self.marginal > 0))
+
+    def __repr__(self) -> str:
+        m, n = self.probs.shape
+        return (
+            f"Policy({self.objective}, beta={_fmt(self.beta)}, {m} states x {n} phenotypes, "
+            f"I={_fmt(self.information_bits)} bits, E[u]={_fmt(self.expected_payoff)}, "
+            f"{self.status}, {self.iterations} iterations)"
+        )
+
+
+@dataclass(frozen=True, repr=False)
+class CriticalBeta:
+    """A beta where the set of phenotypes in use changes.
+
+    Attributes
+    ----------
+    beta : float
+        Location (nats per payoff unit).
+    entering, leaving : tuple of int
+        Phenotypes that start / stop being used as beta increases through ``beta``.
+    exact : bool
+        True for the closed-form first critical beta (Kuhn–Tucker conditions, Blahut 1972).
+    """
+
+    beta: float
+    entering: tuple[int, ...]
+    leaving: tuple[int, ...]
+    exact: bool = False
+
+    def __repr__(self) -> str:
+        parts = []
+        if self.entering:
+            parts.append(f"enter {list(self.entering)}")
+        if self.leaving:
+            parts.append(f"leave {list(self.leaving)}")
+        return f"CriticalBeta({self.beta:.10g}: {', '.join(parts)})"
+
+
+@dataclass(frozen=True, repr=False)
+class Tradeoff:
+    """Solutions along a grid of betas: the information–payoff curve.
+
+    Attributes
+    ----------
+    betas : ndarray, shape (k,)
+    information_bits, conditional_entropy_bits, expected_payoff : ndarray, shape (k,)
+    probs : ndarray, shape (k, states, phenotypes)
+    marginals : ndarray, shape (k, phenotypes)
+    iterations : ndarray of int, shape (k,)
+    converged : ndarray of bool, shape (k,)
+    critical_betas : tuple of CriticalBeta
+        In increasing order, every beta in ``[betas.min(), betas.max()]`` where the set of
+        phenotypes in use changes, each located to 1e-6 or better (transitions that both start
+        and end between two neighbouring grid points are not seen).
+    objective : str
+    """
+
+    betas: np.ndarray
+    information_bits: np.ndarray
+    conditional_entropy_bits: np.ndarray
+    expected_payoff: np.ndarray
+    probs: np.ndarray
+    marginals: np.ndarray
+    iterations: np.ndarray
+    converged: np.ndarray
+    critical_betas: tuple = field(default=())
+    objective: str = "min-information"
+
+    def to_xarray(self, *, states=None, phenotypes=None):
+        """Labelled copy as an ``xarray.Dataset`` with units and long names."""
+        import xarray as xr
+
+        k, m, n = self.probs.shape
+        states = np.arange(m) if states is None else np.asarray(states)
+        phenotypes = np.arange(n) if phenotypes is None else np.asarray(phenotypes)
+        coords = {
+            "beta": ("beta", self.betas, {"units": "nats per payoff unit",
+                                          "long_name": "Lagrange multiplier of the information term"}),
+            "state": ("state", states, {"long_name": "environment state"}),
+            "phenotype": ("phenotype", phenotypes, {"long_name": "phenotype"}),
+        }
+        data = {
+            "information": ("beta", self.information_bits,
+                            {"units": "bit", "long_name": "mutual information I(X;Y)"}),
+            "conditional_entropy": ("beta", self.conditional_entropy_bits,
+                                    {"units": "bit", "long_name": "conditional entropy H(X|Y)"}),
+            "expected_payoff": ("beta", self.expected_payoff,
+                                {"units": "payoff unit", "long_name": "expected payoff E[u]"}),
+            "policy": (("beta", "state", "phenotype"), self.probs,
+                       {"units": "1", "long_name": "probability q(x|y) of phenotype given state"}),
+            "marginal": (("beta", "phenotype"), self.marginals,
+                         {"units": "1", "long_name": "phenotype fraction r(x)"}),
+            "iterations": ("beta", self.iterations, {"long_name": "solver iterations"}),
+            "converged": ("beta", self.converged.astype(np.int8),
+                          {"long_name": "solver converged (1) or not (0)"}),
+        }
+        return xr.Dataset(
+            data,
+            coords=coords,
+            attrs={
+                "objective": self.objective,
+                "critical_betas": np.array([c.beta for c in self.critical_betas], dtype=float),
+            },
+        )
+
+    def __repr__(self) -> str:
+        k, m, n = self.probs.shape
+        crit = ", ".join(f"{c.beta:.6g}" for c in self.critical_betas) or "none"
+        return (
+            f"Tradeoff({self.objective}, {k} betas in [{_fmt(self.betas.min())}, "
+            f"{_fmt(self.betas.max())}], {m} states x {n} phenotypes, "
+            f"I up to {_fmt(self.information_bits.max())} bits, critical betas: {crit})"
+        )
+
+
+@dataclass(frozen=True, repr=False)
+class Capacity:
+    """Capacity of a sensing channel ``W(s | y)``.
+
+    Attributes
+    ----------
+    bits : float
+        Channel capacity ``max_p I(Y; S)`` (bits per use).
+    input : ndarray
+        A capacity-achieving input distribution over ``y``.
+    gap_bits : float
+        Certified width of the bracket ``[lower, upper]`` on the capacity (bits).
+    converged, iterations, message :
+        Solver outcome.
+    """
+
+    bits: float
+    input: np.ndarray
+    gap_bits: float
+    converged: bool
+    iterations: int
+    message: str
+
+    def __repr__(self) -> str:
+        return (
+            f"Capacity({_fmt(self.bits)} bits, certified within {self.gap_bits:.2g} bits, "
+            f"{self.iterations} iterations)"
+        )
