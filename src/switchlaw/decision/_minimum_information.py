@@ -6,12 +6,14 @@ The stationary point is ``q(x|y) = r(x) exp(beta u(y,x)) / Z(y)`` with ``r`` the
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from scipy.optimize import brentq
 
 from ._blahut_arimoto import blahut_arimoto_marginal
 from ._marginal_newton import MarginalResult, newton_marginal
-from ._problem import Reduced, policy_from_marginal
+from ._problem import Gaps, policy_from_marginal
 
 METHODS = ("newton", "blahut-arimoto")
 
@@ -113,6 +115,29 @@ def first_critical_beta(payoff, env) -> float:
     return first_critical_beta_of(_unique_phenotypes(u)[0], p)
 
 
+@dataclass(frozen=True)
+class Prepared:
+    """What every beta of one problem shares: distinct phenotype columns and their gaps."""
+
+    distinct: np.ndarray
+    inverse: np.ndarray
+    counts: np.ndarray
+    gaps: Gaps
+
+    @classmethod
+    def build(cls, payoff: np.ndarray, env: np.ndarray) -> "Prepared":
+        distinct, inverse, counts = _unique_phenotypes(payoff)
+        return cls(distinct, inverse, counts, Gaps.build(distinct, env))
+
+    def merge(self, r: np.ndarray) -> np.ndarray:
+        """A marginal over all phenotypes summed onto the distinct columns."""
+        return np.bincount(self.inverse, weights=r, minlength=self.distinct.shape[1])
+
+    def split(self, r_distinct: np.ndarray) -> np.ndarray:
+        """A marginal over distinct columns shared equally among duplicates."""
+        return r_distinct[self.inverse] / self.counts[self.inverse]
+
+
 def _unique_phenotypes(payoff: np.ndarray):
     """Merge phenotypes with identical payoff columns (they share mass equally)."""
     columns, first, inverse, counts = np.unique(
@@ -136,13 +161,17 @@ def solve_marginal(
     allowed: np.ndarray | None = None,
     tol: float = 1e-12,
     max_iter: int | None = None,
+    gaps: Gaps | None = None,
 ) -> MarginalResult:
-    """Optimal marginal for distinct phenotype columns (no duplicate columns expected)."""
+    """Optimal marginal for distinct phenotype columns (no duplicate columns expected).
+
+    ``gaps`` is ``Gaps.build(payoff, env)`` when the caller already has it.
+    """
     n = payoff.shape[1]
     allowed = np.ones(n, dtype=bool) if allowed is None else allowed
     if start is None:
         start = allowed / allowed.sum()
-    problem = Reduced.build(payoff, env, beta)
+    problem = (gaps or Gaps.build(payoff, env)).at(beta)
     if method == "newton":
         result = newton_marginal(
             problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500
@@ -171,12 +200,12 @@ def minimum_information_marginal(
     start: np.ndarray | None = None,
     tol: float = 1e-12,
     max_iter: int | None = None,
-    distinct_columns: tuple | None = None,
+    prepared: Prepared | None = None,
 ) -> tuple[np.ndarray, MarginalResult, str]:
     """Optimal marginal over all phenotypes (duplicates merged), and the status word.
 
     Returns the marginal over the original phenotypes, the solver record, and ``status``.
-    ``distinct_columns`` is ``_unique_phenotypes(payoff)`` when the caller already has it.
+    ``prepared`` is ``Prepared.build(payoff, env)`` when the caller already has it.
     """
     n = payoff.shape[1]
     if n == 1:
@@ -186,7 +215,8 @@ def minimum_information_marginal(
         r = best / best.sum()
         record = MarginalResult(r, 0.0, 0, True, "beta = 0: every phenotype on the best mean payoff")
         return r, record, "closed-form"
-    distinct, inverse, counts = distinct_columns or _unique_phenotypes(payoff)
+    prepared = prepared or Prepared.build(payoff, env)
+    distinct = prepared.distinct
     if stays_deterministic(distinct, env, beta):
         r_distinct = np.zeros(distinct.shape[1])
         r_distinct[int(np.argmax(best_on_average(distinct, env)))] = 1.0
@@ -197,16 +227,16 @@ def minimum_information_marginal(
         status = "closed-form"
     else:
         if start is not None:
-            start = np.bincount(inverse, weights=start, minlength=distinct.shape[1])
+            start = prepared.merge(start)
             if start.sum() <= 0:
                 start = None
         record = solve_marginal(
-            distinct, env, beta, method=method, start=start, tol=tol, max_iter=max_iter
+            distinct, env, beta, method=method, start=start, tol=tol, max_iter=max_iter,
+            gaps=prepared.gaps,
         )
         r_distinct = record.marginal
         status = "converged" if record.converged else "not-converged"
-    r = r_distinct[inverse] / counts[inverse]
-    return r, record, status
+    return prepared.split(r_distinct), record, status
 
 
 def policy_for_marginal(payoff: np.ndarray, beta: float, r: np.ndarray) -> np.ndarray:

@@ -168,12 +168,12 @@ def solve_checked(
     start: np.ndarray | None = None,
     tol: float = 1e-12,
     max_iter: int | None = None,
-    distinct_columns: tuple | None = None,
+    prepared=None,
 ) -> Policy:
     """Min-information :func:`solve` on validated inputs (for loops over beta)."""
     r, record, status = minimum_information_marginal(
         u, p, beta, method=method, start=start, tol=tol, max_iter=max_iter,
-        distinct_columns=distinct_columns,
+        prepared=prepared,
     )
     q = policy_for_marginal(u, beta, r) if beta > 0 else np.tile(r, (u.shape[0], 1))
     return make_policy(

@@ -8,12 +8,12 @@ from scipy.optimize import brentq
 from .._errors import InputError
 from .._validate import as_array, choice
 from ._minimum_information import (
-    _unique_phenotypes,
+    Prepared,
     first_critical_beta_of,
     minimum_information_marginal,
     solve_marginal,
 )
-from ._problem import Reduced, evaluate
+from ._problem import evaluate
 from ._results import CriticalBeta, Tradeoff
 from ._solve import OBJECTIVES, check_problem, solve, solve_checked
 
@@ -36,21 +36,29 @@ class _Locator:
     Otherwise the interval is bisected on the full solution.
     """
 
-    def __init__(self, payoff: np.ndarray, env: np.ndarray):
-        self.payoff = payoff
+    def __init__(self, prepared: Prepared, env: np.ndarray):
+        self.payoff = prepared.distinct
         self.env = env
-        self.n = payoff.shape[1]
+        self.n = self.payoff.shape[1]
+        self.gaps = prepared.gaps
+        # The locator works on distinct columns already: an identity grouping.
+        self.identity = Prepared(
+            self.payoff, np.arange(self.n), np.ones(self.n, dtype=int), prepared.gaps
+        )
 
     def full(self, beta: float, start: np.ndarray | None) -> np.ndarray:
-        r, _, _ = minimum_information_marginal(self.payoff, self.env, beta, start=start)
+        r, _, _ = minimum_information_marginal(
+            self.payoff, self.env, beta, start=start, prepared=self.identity
+        )
         return r
 
     def kkt_excess(self, beta: float, smaller: frozenset, x: int, start: np.ndarray) -> float:
         allowed = np.zeros(self.n, dtype=bool)
         allowed[list(smaller)] = True
-        record = solve_marginal(self.payoff, self.env, beta, start=start, allowed=allowed)
-        c = evaluate(Reduced.build(self.payoff, self.env, beta), record.marginal).c
-        return float(np.log(c[x]))
+        record = solve_marginal(
+            self.payoff, self.env, beta, start=start, allowed=allowed, gaps=self.gaps
+        )
+        return float(np.log(evaluate(self.gaps.at(beta), record.marginal).c[x]))
 
     def between(self, lo: float, r_lo: np.ndarray, hi: float, r_hi: np.ndarray) -> list:
         s_lo, s_hi = _support(r_lo), _support(r_hi)
@@ -131,10 +139,10 @@ def tradeoff(
     else:
         if reference is not None:
             solve(u, p, 1.0, reference=reference)  # raises the documented error
-        distinct = _unique_phenotypes(u)
+        prepared = Prepared.build(u, p)
         start = None
         for beta in grid[order]:
-            policy = solve_checked(u, p, float(beta), start=start, distinct_columns=distinct)
+            policy = solve_checked(u, p, float(beta), start=start, prepared=prepared)
             if policy.status != "closed-form":
                 start = policy.marginal
             policies.append(policy)
@@ -143,7 +151,7 @@ def tradeoff(
     policies = [policies[i] for i in back]
     critical = ()
     if objective == "min-information" and u.shape[1] > 1:
-        critical = _critical_betas(u, p, np.sort(grid), [policies[i] for i in order])
+        critical = _critical_betas(prepared, p, np.sort(grid), [policies[i] for i in order])
     return Tradeoff(
         betas=grid,
         information_bits=np.array([q.information_bits for q in policies]),
@@ -158,13 +166,11 @@ def tradeoff(
     )
 
 
-def _critical_betas(u, p, grid, sorted_policies) -> tuple:
+def _critical_betas(prepared: Prepared, p, grid, sorted_policies) -> tuple:
     """Locate support changes between consecutive grid betas (distinct phenotypes only)."""
-    distinct, inverse, _ = _unique_phenotypes(u)
-    locator = _Locator(distinct, p)
-
-    def merged(r):
-        return np.bincount(inverse, weights=r, minlength=distinct.shape[1])
+    distinct, inverse = prepared.distinct, prepared.inverse
+    locator = _Locator(prepared, p)
+    merged = prepared.merge
 
     found = []
     for i in range(grid.size - 1):
