@@ -12,3 +12,7 @@ class InputError(ValueError):
 
 class InfeasibleError(InputError):
     """The requested problem has no solution (for example a budget beyond what is possible)."""
+
+
+# Shown as ``switchlaw.InputError`` in tracebacks: the public name.
+InputError.__module__ = InfeasibleError.__module__ = "switchlaw"

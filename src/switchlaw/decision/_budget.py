@@ -17,7 +17,7 @@ from scipy.optimize import brentq
 from .._errors import InfeasibleError, InputError
 from .._validate import as_array, as_distribution, as_nonnegative, choice
 from ..information._measures import NATS_PER_BIT
-from ._minimum_information import policy_for_marginal
+from ._minimum_information import first_critical_beta_of, policy_for_marginal
 from ._results import Policy
 from ._solve import check_problem, make_policy, solve_checked
 
@@ -123,6 +123,10 @@ def solve_budget(
                 f"(got {fractions.size})"
             )
     extra = _check_constraints(constraints, u.shape)
+    if fractions is None and not extra:
+        greedy = _greedy(u, p)
+        if budget >= greedy.information_bits - 1e-12:
+            return greedy
     if method == "bisection":
         if fractions is not None or extra:
             raise InputError(
@@ -145,21 +149,25 @@ def _greedy(u: np.ndarray, p: np.ndarray) -> Policy:
 
 
 def _bisection(u: np.ndarray, p: np.ndarray, budget: float) -> Policy:
-    """Beta whose min-information solution has ``I = budget`` (I is increasing in beta)."""
-    greedy = _greedy(u, p)
-    if budget >= greedy.information_bits - 1e-12:
-        return greedy
+    """Beta whose min-information solution has ``I = budget`` (I is increasing in beta).
+
+    Below the first critical beta ``I = 0``, so the search starts there.
+    """
+    first = first_critical_beta_of(u, p)
+    if budget == 0:
+        return solve_checked(u, p, first if math.isfinite(first) else 0.0)
 
     def excess(log_beta):
         return solve_checked(u, p, math.exp(log_beta)).information_bits - budget
 
-    if budget == 0:
-        return solve_checked(u, p, 0.0)
-    lo, hi = -20.0, 1.0
+    lo = math.log(first) if first > 0 else -50.0
+    hi = lo + 1.0
     while excess(hi) < 0:
-        hi += 2.0
-        if hi > 30:
-            return greedy
+        lo, hi = hi, hi + 2.0
+        if hi > 60:
+            raise InfeasibleError(
+                f"no beta up to e^60 reaches `bits` = {budget!r}; the budget is nearly slack"
+            )
     log_beta = brentq(excess, lo, hi, xtol=1e-13, rtol=1e-14)
     policy = solve_checked(u, p, math.exp(log_beta))
     return make_policy(

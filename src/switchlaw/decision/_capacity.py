@@ -5,7 +5,8 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import rel_entr
 
-from .._validate import as_stochastic_matrix
+from .._errors import InputError
+from .._validate import as_positive, as_stochastic_matrix
 from ..information._measures import NATS_PER_BIT
 from ._results import Capacity
 
@@ -39,9 +40,12 @@ def capacity(channel, *, tol_bits: float = 1e-10, max_iter: int = 100_000) -> Ca
     Examples
     --------
     >>> round(capacity([[0.9, 0.1], [0.1, 0.9]]).bits, 8)   # 1 - H_b(0.1)
-    0.53100495
+    0.53100441
     """
     w = as_stochastic_matrix(channel, "channel")
+    tol_bits = as_positive(tol_bits, "tol_bits")
+    if isinstance(max_iter, bool) or not isinstance(max_iter, (int, np.integer)) or max_iter < 1:
+        raise InputError(f"`max_iter` must be a positive integer (got {max_iter!r})")
     m = w.shape[0]
     p = np.full(m, 1.0 / m)
     lower = upper = 0.0

@@ -100,7 +100,7 @@ class Evaluation:
     def ratio(self) -> np.ndarray:
         """``exp(beta u(y,x)) / Z(y)`` per state and phenotype, capped at 1e300."""
         problem = self.problem
-        with np.errstate(over="ignore"):
+        with np.errstate(over="ignore", invalid="ignore"):  # low rows are replaced below
             ratio = problem.expo * np.exp(-self.log_z)[:, None]
             if self.low.any():
                 ratio[self.low] = np.exp(

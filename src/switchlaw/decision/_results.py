@@ -28,8 +28,8 @@ class Policy:
     expected_payoff : float
         ``E[u] = sum_y p(y) sum_x q(x|y) u(y, x)`` (payoff units).
     beta : float
-        Lagrange multiplier of the information term (nats per payoff unit); ``inf`` when a
-        budget does not bind.
+        Sensitivity: the Lagrange multiplier that weighs expected payoff against information
+        in ``I(X;Y) - beta E[u]`` (nats per payoff unit); ``inf`` when a budget does not bind.
     objective : str
         ``"min-information"`` or ``"max-entropy"``.
     converged, iterations, status, message :
@@ -37,7 +37,7 @@ class Policy:
         ``"budget-slack"``, ``"not-converged"``.
     gap_nats : float
         Certified upper bound on the objective's distance from its optimum (nats); 0 for
-        closed forms; the solver's own tolerance report for conic solves.
+        closed forms; NaN for conic solves (the conic solver reports its own tolerances).
     method : str
         Which algorithm produced the policy.
     """
@@ -112,8 +112,8 @@ class Tradeoff:
     converged : ndarray of bool, shape (k,)
     critical_betas : tuple of CriticalBeta
         In increasing order, every beta in ``[betas.min(), betas.max()]`` where the set of
-        phenotypes in use changes, each located to 1e-6 or better (transitions that both start
-        and end between two neighbouring grid points are not seen).
+        phenotypes in use changes, each located to about 1e-10 in beta (transitions that both
+        start and end between two neighbouring grid points are not seen).
     objective : str
     """
 
@@ -137,7 +137,7 @@ class Tradeoff:
         phenotypes = np.arange(n) if phenotypes is None else np.asarray(phenotypes)
         coords = {
             "beta": ("beta", self.betas, {"units": "nats per payoff unit",
-                                          "long_name": "Lagrange multiplier of the information term"}),
+                                          "long_name": "sensitivity beta (Lagrange multiplier of the payoff term)"}),
             "state": ("state", states, {"long_name": "environment state"}),
             "phenotype": ("phenotype", phenotypes, {"long_name": "phenotype"}),
         }

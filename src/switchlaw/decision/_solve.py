@@ -11,7 +11,6 @@ from ..information._measures import NATS_PER_BIT, _mutual_information_nats
 from ._minimum_information import METHODS, minimum_information_marginal, policy_for_marginal
 from ._results import Policy
 
-OBJECTIVES = ("min-information", "max-entropy")
 
 
 def check_problem(payoff, env) -> tuple[np.ndarray, np.ndarray]:
@@ -130,17 +129,27 @@ def solve(
     u, p = check_problem(payoff, env)
     beta = as_nonnegative(beta, "beta")
     choice(objective, "objective", OBJECTIVES)
-    if objective == "max-entropy":
-        ref = None if reference is None else as_distribution(reference, "reference")
-        if ref is not None and ref.size != u.shape[1]:
-            raise InputError(
-                f"`reference` must have one entry per phenotype ({u.shape[1]}) (got {ref.size})"
-            )
-        q = max_entropy_policy(u, beta, ref)
-        return make_policy(
-            u, p, q, beta=beta, objective=objective, converged=True, iterations=0,
-            status="closed-form", message="softmax of beta * payoff", method="closed-form",
+    return OBJECTIVES[objective](
+        u, p, beta, reference=reference, method=method, tol=tol, max_iter=max_iter,
+        initial_marginal=initial_marginal,
+    )
+
+
+def _max_entropy(u, p, beta, *, reference, method, tol, max_iter, initial_marginal) -> Policy:
+    del method, tol, max_iter, initial_marginal  # closed form: no iterations to steer
+    ref = None if reference is None else as_distribution(reference, "reference")
+    if ref is not None and ref.size != u.shape[1]:
+        raise InputError(
+            f"`reference` must have one entry per phenotype ({u.shape[1]}) (got {ref.size})"
         )
+    q = max_entropy_policy(u, beta, ref)
+    return make_policy(
+        u, p, q, beta=beta, objective="max-entropy", converged=True, iterations=0,
+        status="closed-form", message="softmax of beta * payoff", method="closed-form",
+    )
+
+
+def _min_information(u, p, beta, *, reference, method, tol, max_iter, initial_marginal) -> Policy:
     if reference is not None:
         raise InputError(
             "`reference` applies to objective='max-entropy' only "
@@ -157,6 +166,10 @@ def solve(
                 f"(got {start.size})"
             )
     return solve_checked(u, p, beta, method=method, start=start, tol=tol, max_iter=max_iter)
+
+
+#: ``objective=`` names and their solvers.
+OBJECTIVES = {"min-information": _min_information, "max-entropy": _max_entropy}
 
 
 def solve_checked(
