@@ -193,4 +193,5 @@ def solve_checked(
         u, p, q, beta=beta, objective="min-information", converged=record.converged,
         iterations=record.iterations, status=status, message=record.message,
         gap_nats=record.gap_nats, method=method if status != "closed-form" else "closed-form",
+        marginal=r if status == "closed-form" else None,
     )
