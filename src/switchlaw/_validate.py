@@ -19,8 +19,8 @@ SUM_TOLERANCE = 1e-9
 def _show(value) -> str:
     """A short printable form of a received value for error messages."""
     if isinstance(value, np.ndarray):
-        if value.size <= 6:
-            return np.array2string(value, precision=6, separator=", ")
+        if value.ndim == 1 and value.size <= 6:
+            return np.array2string(value, precision=6, separator=", ").replace("\n", "")
         return f"array of shape {value.shape}"
     text = repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
