@@ -147,6 +147,28 @@ def _support_newton_step(problem: Reduced, ratio: np.ndarray, r: np.ndarray, c: 
     return r * scaled
 
 
+def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, tol: float):
+    """The step for the phenotypes in ``index``: Newton on the support when it is settled,
+    otherwise the minimiser of the quadratic model over the simplex."""
+    support = r > 0
+    ratio = np.minimum(ev.ratio[:, index], _RATIO_CAP)
+    c = ev.c[index]
+    if not (c[~support] > 1.0 + tol).any():
+        step = _support_newton_step(problem, ratio[:, support], r[support], c[support])
+        if (r[support] + step >= 0).all():
+            direction = np.zeros(index.size)
+            direction[support] = step
+            return direction
+    hessian = (ratio * problem.p[:, None]).T @ ratio
+    hessian[np.diag_indices_from(hessian)] += _RIDGE * np.trace(hessian) / index.size
+    w = simplex_qp(hessian, -c - hessian @ r)
+    if np.array_equal(w > 0, support):
+        direction = np.zeros(index.size)
+        direction[support] = _support_newton_step(problem, ratio[:, support], r[support], c[support])
+        return direction
+    return w - r
+
+
 def newton_marginal(
     problem: Reduced,
     start: np.ndarray,
@@ -182,18 +204,8 @@ def newton_marginal(
             ev = evaluate(problem, r)
             gap = _gap(ev.c, allowed)
             continue
-        ratio = np.minimum(ev.ratio[:, index], _RATIO_CAP)
-        hessian = (ratio * problem.p[:, None]).T @ ratio
-        hessian[np.diag_indices_from(hessian)] += _RIDGE * np.trace(hessian) / index.size
+        direction = _direction(problem, ev, r[index], index, tol)
         gradient = -ev.c[index]
-        w = simplex_qp(hessian, gradient - hessian @ r[index])
-        direction = w - r[index]
-        support = r[index] > 0
-        if np.array_equal(w > 0, support):
-            direction = np.zeros(index.size)
-            direction[support] = _support_newton_step(
-                problem, ratio[:, support], r[index][support], ev.c[index][support]
-            )
         decrease = -float(gradient @ direction)
         if not decrease > 0:
             break
