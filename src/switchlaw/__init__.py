@@ -21,6 +21,23 @@ from .decision import (
     solve_budget,
     tradeoff,
 )
+from .laws import (
+    BINNING_RULES,
+    Environment,
+    FormulaFit,
+    GaussianReceptor,
+    Hill,
+    Linear,
+    PoissonReceptor,
+    SwitchingLaw,
+    Threshold,
+    continuous_signal,
+    derive_law,
+    empirical,
+    fit_formula,
+    occupancy,
+    product_environment,
+)
 from .information import (
     NATS_PER_BIT,
     conditional_entropy,
@@ -30,9 +47,28 @@ from .information import (
     to_bits,
 )
 
+from .plotting import plot_law, plot_tradeoff
+
 __version__ = "0.1.0"
 
 __all__ = [
+    "BINNING_RULES",
+    "Environment",
+    "FormulaFit",
+    "GaussianReceptor",
+    "Hill",
+    "Linear",
+    "PoissonReceptor",
+    "SwitchingLaw",
+    "Threshold",
+    "continuous_signal",
+    "derive_law",
+    "empirical",
+    "fit_formula",
+    "occupancy",
+    "product_environment",
+    "plot_law",
+    "plot_tradeoff",
     "Capacity",
     "CriticalBeta",
     "InfeasibleError",

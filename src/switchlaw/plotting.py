@@ -1,0 +1,80 @@
+"""Plot helpers: ``fn(result, ...) -> axes``. Matplotlib is imported only when called."""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def plot_law(law, *, phenotype=None, axes=None):
+    """The law as a heat map over state x density, and the mean-field fractions against density.
+
+    Parameters
+    ----------
+    law : SwitchingLaw
+    phenotype : str or int, optional
+        Phenotype shown in the heat map (default: the second one, or the only one).
+    axes : pair of matplotlib Axes, optional
+        Created side by side if not given.
+
+    Returns
+    -------
+    tuple of Axes
+        ``(heat_map_axes, fractions_axes)``.
+    """
+    import matplotlib.pyplot as plt
+
+    if axes is None:
+        _, axes = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
+    heat, lines = axes
+    names = list(law.phenotypes)
+    if phenotype is None:
+        index = 1 if len(names) > 1 else 0
+    else:
+        index = phenotype if isinstance(phenotype, (int, np.integer)) else names.index(phenotype)
+    states = np.arange(law.states.size)
+    image = heat.pcolormesh(
+        law.densities, states, law.table[:, :, index].T, shading="nearest",
+        vmin=0.0, vmax=1.0, cmap="viridis",
+    )
+    heat.figure.colorbar(image, ax=heat, label=f"q({names[index]} | state, density)")
+    heat.set_xlabel("density")
+    heat.set_ylabel("sensed state")
+    if law.states.size <= 20:
+        heat.set_yticks(states, [str(s) for s in law.states])
+    heat.set_title(f"probability of {names[index]}")
+    fractions = np.einsum("ky,kyx->kx", law.state_probs, law.table)
+    for j, name in enumerate(names):
+        lines.plot(law.densities, fractions[:, j], label=name)
+    lines.set_xlabel("density")
+    lines.set_ylabel("mean-field fraction")
+    lines.set_ylim(-0.02, 1.02)
+    lines.set_title("mean-field fractions (averaged over states)")
+    lines.legend(frameon=False)
+    return heat, lines
+
+
+def plot_tradeoff(curve, *, ax=None):
+    """The information–payoff curve with its critical betas marked.
+
+    Parameters
+    ----------
+    curve : Tradeoff
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(5, 4), constrained_layout=True)
+    order = np.argsort(curve.betas)
+    ax.plot(curve.information_bits[order], curve.expected_payoff[order], marker=".", lw=1.5)
+    ax.set_xlabel("information I(X;Y) (bits)")
+    ax.set_ylabel("expected payoff E[u]")
+    for critical in curve.critical_betas:
+        ax.annotate(f"β = {critical.beta:.4g}", xy=(0.02, 0.95 - 0.06 * curve.critical_betas.index(critical)),
+                    xycoords="axes fraction", fontsize=8)
+    ax.set_title("information–payoff trade-off")
+    return ax
