@@ -77,7 +77,7 @@ def as_stochastic_matrix(value, name: str) -> np.ndarray:
     if off.any():
         row = int(np.argmax(off))
         raise InputError(
-            f"`{name}` rows must sum to 1 within {SUM_TOLERANCE:g}; row {row} sums to {sums[row]!r}"
+            f"`{name}` rows must sum to 1 within {SUM_TOLERANCE:g}; row {row} sums to {float(sums[row])!r}"
         )
     return matrix / sums[:, None]
 

@@ -138,16 +138,23 @@ class Prepared:
 
 
 def _unique_phenotypes(payoff: np.ndarray):
-    """Merge phenotypes with identical payoff columns (they share mass equally)."""
-    columns, first, inverse, counts = np.unique(
-        payoff.T, axis=0, return_index=True, return_inverse=True, return_counts=True
-    )
-    order = np.argsort(first)
-    columns = columns[order]
-    rank = np.empty_like(order)
-    rank[order] = np.arange(order.size)
-    inverse = rank[inverse.ravel()]
-    return columns.T, inverse, counts[order]
+    """Merge phenotypes with identical payoff columns (they share mass equally).
+
+    Returns the distinct columns (in order of first appearance), the group of every phenotype,
+    and the group sizes.
+    """
+    n = payoff.shape[1]
+    group = np.arange(n)
+    for j in range(1, n):
+        for i in range(j):
+            if group[i] == i and np.array_equal(payoff[:, i], payoff[:, j]):
+                group[j] = i
+                break
+    firsts = np.flatnonzero(group == np.arange(n))
+    rank = np.empty(n, dtype=int)
+    rank[firsts] = np.arange(firsts.size)
+    inverse = rank[group]
+    return payoff[:, firsts], inverse, np.bincount(inverse)
 
 
 def solve_marginal(

@@ -131,7 +131,7 @@ def tradeoff(
     choice(objective, "objective", OBJECTIVES)
     grid = as_array(betas, "betas", ndim=1)
     if (grid < 0).any():
-        raise InputError(f"`betas` must be >= 0 (got minimum {grid.min()!r})")
+        raise InputError(f"`betas` must be >= 0 (got minimum {float(grid.min())!r})")
     order = np.argsort(grid, kind="stable")
     policies = []
     if objective == "max-entropy":

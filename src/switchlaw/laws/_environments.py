@@ -348,7 +348,7 @@ def as_environment(value, name: str = "environment") -> Environment:
     """An :class:`Environment`, or a plain probability vector wrapped as one."""
     if isinstance(value, Environment):
         if not math.isclose(float(value.probs.sum()), 1.0, abs_tol=1e-9):
-            raise InputError(f"`{name}` probabilities must sum to 1 (got {value.probs.sum()!r})")
+            raise InputError(f"`{name}` probabilities must sum to 1 (got {float(value.probs.sum())!r})")
         return value
     probs = as_distribution(value, name)
     return Environment(states=np.arange(probs.size), probs=probs, values=np.arange(probs.size, dtype=float))

@@ -200,7 +200,7 @@ def _densities(values) -> np.ndarray:
     grid = as_array(values, "densities", ndim=1)
     if (grid < 0).any() or (grid > 1).any():
         bad = grid[(grid < 0) | (grid > 1)][0]
-        raise InputError(f"`densities` must lie in [0, 1] (got {bad!r})")
+        raise InputError(f"`densities` must lie in [0, 1] (got {float(bad)!r})")
     if grid.size > 1 and not (np.diff(grid) > 0).all():
         raise InputError("`densities` must be strictly increasing")
     return grid
