@@ -47,7 +47,17 @@ from .information import (
     to_bits,
 )
 
-from .plotting import plot_law, plot_tradeoff
+from .population import (
+    REGIMES,
+    BifurcationDiagram,
+    Branch,
+    CriticalPoint,
+    Equilibrium,
+    MeanField,
+    Trajectory,
+    equilibria_of,
+)
+from .plotting import plot_bifurcation, plot_law, plot_tradeoff
 
 __version__ = "0.1.0"
 
@@ -69,6 +79,15 @@ __all__ = [
     "product_environment",
     "plot_law",
     "plot_tradeoff",
+    "plot_bifurcation",
+    "REGIMES",
+    "BifurcationDiagram",
+    "Branch",
+    "CriticalPoint",
+    "Equilibrium",
+    "MeanField",
+    "Trajectory",
+    "equilibria_of",
     "Capacity",
     "CriticalBeta",
     "InfeasibleError",

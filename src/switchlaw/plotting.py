@@ -78,3 +78,44 @@ def plot_tradeoff(curve, *, ax=None):
                     xycoords="axes fraction", fontsize=8)
     ax.set_title("information–payoff trade-off")
     return ax
+
+
+def plot_bifurcation(diagram, *, ax=None):
+    """Equilibrium density against beta: stable branches solid, unstable dashed, critical points marked.
+
+    Parameters
+    ----------
+    diagram : BifurcationDiagram
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(6, 4), constrained_layout=True)
+    lo, hi = diagram.beta_range
+    stable_zero = np.asarray(diagram.zero_stable)
+    betas = np.asarray(diagram.zero_betas)
+    for mask, style in ((stable_zero, "-"), (~stable_zero, "--")):
+        ax.plot(np.where(mask, betas, np.nan), np.zeros_like(betas), style, color="k", lw=1.5)
+    for branch in diagram.branches:
+        for mask, style in ((branch.stable, "-"), (~branch.stable, "--")):
+            segment = np.where(mask, branch.densities, np.nan)
+            ax.plot(branch.betas, segment, style, color="C0", lw=1.8)
+    for point in diagram.critical_points:
+        marker = "o" if point.kind == "fold" else "s"
+        ax.plot(point.beta, point.density, marker, color="C3", ms=6)
+        ax.annotate(f"{point.kind}\nβ={point.beta:.4g}", (point.beta, point.density),
+                    textcoords="offset points", xytext=(4, 6), fontsize=8, color="C3")
+    ax.plot([], [], "-", color="k", label="stable")
+    ax.plot([], [], "--", color="k", label="unstable")
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(-0.03, 1.03)
+    ax.set_xlabel("β (nats per payoff unit)")
+    ax.set_ylabel("equilibrium density")
+    ax.set_title("equilibria against sensitivity β")
+    ax.legend(frameon=False, loc="upper left")
+    return ax

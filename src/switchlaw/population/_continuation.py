@@ -1,0 +1,177 @@
+"""Pseudo-arclength continuation of equilibrium branches in beta, with folds and
+transcritical points located.
+
+Branches are curves ``H(rho, beta) = 0`` of the model's reduced equation (see
+:meth:`MeanField.reduced`). Steps are taken in ``(rho, s)`` with ``s`` beta rescaled to the
+requested range, so that both coordinates have unit scale (Keller 1977; Allgower & Georg 1990,
+*Numerical Continuation Methods*).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq, minimize_scalar
+
+_STEP = 1e-6
+
+
+@dataclass(frozen=True, repr=False)
+class CriticalPoint:
+    """A beta where the equilibria change qualitatively.
+
+    Attributes
+    ----------
+    beta : float
+    kind : str
+        ``"transcritical"`` (the zero state changes stability as a positive branch crosses it)
+        or ``"fold"`` (two positive equilibria meet and vanish).
+    density : float
+        Density of the equilibrium at the critical point (0 for transcritical points).
+    """
+
+    beta: float
+    kind: str
+    density: float
+
+    def __repr__(self) -> str:
+        return f"CriticalPoint({self.kind} at beta={self.beta:.10g}, density={self.density:.6g})"
+
+
+@dataclass(frozen=True, repr=False)
+class Branch:
+    """Points along one branch of positive equilibria, in continuation order."""
+
+    densities: np.ndarray
+    betas: np.ndarray
+    stable: np.ndarray
+
+    def __repr__(self) -> str:
+        return (
+            f"Branch({self.densities.size} points, beta {self.betas.min():.4g}–{self.betas.max():.4g}, "
+            f"density {self.densities.min():.4g}–{self.densities.max():.4g})"
+        )
+
+
+@dataclass(frozen=True, repr=False)
+class BifurcationDiagram:
+    """Equilibrium branches over a beta range and the critical points on them.
+
+    Attributes
+    ----------
+    beta_range : tuple of float
+    branches : tuple of Branch
+        Positive equilibria (the zero state is always an equilibrium).
+    zero_stable : callable-free summary: ndarray of (beta, stable) samples of the zero state.
+    critical_points : tuple of CriticalPoint, by increasing beta
+    """
+
+    beta_range: tuple
+    branches: tuple
+    zero_betas: np.ndarray
+    zero_stable: np.ndarray
+    critical_points: tuple
+
+    def __repr__(self) -> str:
+        crit = ", ".join(f"{c.kind} {c.beta:.6g}" for c in self.critical_points) or "none"
+        return f"BifurcationDiagram({len(self.branches)} branches, critical points: {crit})"
+
+
+def _gradient(H, rho, beta):
+    lo, hi = max(rho - _STEP, 0.0), min(rho + _STEP, 1.0)
+    h_rho = (H(hi, beta) - H(lo, beta)) / (hi - lo)
+    b_lo = max(beta - _STEP * max(1.0, beta), 0.0)
+    b_hi = beta + _STEP * max(1.0, beta)
+    h_beta = (H(rho, b_hi) - H(rho, b_lo)) / (b_hi - b_lo)
+    return np.array([h_rho, h_beta])
+
+
+def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_points=4000):
+    """Follow ``H = 0`` from ``(rho, beta)``; ``direction`` orients the first step.
+
+    ``direction`` is ``(d_rho, d_beta)``: the first tangent has a positive dot product with it.
+    Stops when the branch leaves ``beta_min <= beta <= beta_max`` or ``0 < rho <= 1``.
+    Returns arrays of densities and betas.
+    """
+    width = beta_max - beta_min
+    scale = np.array([1.0, width])
+    z = np.array([rho, (beta - beta_min) / width])
+
+    def h_scaled(zz):
+        beta_here = beta_min + zz[1] * width
+        if not (0.0 <= zz[0] <= 1.0) or beta_here < 0:
+            return np.nan  # outside the feasible region: the step is shortened
+        return H(zz[0], beta_here)
+
+    def grad_scaled(zz):
+        return _gradient(H, zz[0], beta_min + zz[1] * width) * scale
+
+    g = grad_scaled(z)
+    tangent = np.array([-g[1], g[0]]) / np.hypot(*g)
+    if tangent @ (np.asarray(direction, dtype=float) * np.array([1.0, 1.0 / width])) < 0:
+        tangent = -tangent
+    points = [z.copy()]
+    step = ds
+    while len(points) < max_points and step > 1e-9:
+        guess = z + step * tangent
+        trial = guess.copy()
+        ok = False
+        for _ in range(8):
+            value = h_scaled(trial)
+            if not np.isfinite(value):
+                break
+            g = grad_scaled(trial)
+            system = np.array([g, tangent])
+            rhs = -np.array([value, tangent @ (trial - guess)])
+            try:
+                delta = np.linalg.solve(system, rhs)
+            except np.linalg.LinAlgError:
+                break
+            trial = trial + delta
+            if np.abs(delta).max() < 1e-11:
+                ok = abs(h_scaled(trial)) < 1e-9
+                break
+        if not ok:
+            step *= 0.5
+            continue
+        g = grad_scaled(trial)
+        new_tangent = np.array([-g[1], g[0]]) / np.hypot(*g)
+        if new_tangent @ tangent < 0:
+            new_tangent = -new_tangent
+        z, tangent = trial, new_tangent
+        points.append(z.copy())
+        step = min(step * 1.5, 4 * ds)
+        if not (0.0 < z[0] <= 1.0) or not (0.0 <= z[1] <= 1.0):
+            break
+    arr = np.array(points)
+    return arr[:, 0], beta_min + arr[:, 1] * width
+
+
+def locate_fold(H, rho_a, rho_b, beta_guess, *, maximum: bool) -> tuple[float, float]:
+    """Fold between branch densities ``rho_a`` and ``rho_b``: the extremum of ``beta(rho)``.
+
+    At a fold ``d beta / d rho = 0``; each density near it has one beta on the branch (found by
+    Brent's method around ``beta_guess``), so the fold is an extremum of ``beta(rho)``, located
+    by bounded minimisation. Because beta is stationary there, its error is quadratic in the
+    density error. Returns ``(density, beta)``.
+    """
+    width = 1e-3 * max(1.0, abs(beta_guess))
+
+    def beta_of(rho):
+        lo, hi = max(beta_guess - width, 0.0), beta_guess + width
+        for _ in range(40):
+            f_lo, f_hi = H(rho, lo), H(rho, hi)
+            if np.isfinite(f_lo) and np.isfinite(f_hi) and f_lo * f_hi <= 0:
+                return brentq(lambda b: H(rho, b), lo, hi, xtol=1e-14, rtol=4 * np.finfo(float).eps)
+            lo, hi = max(lo - 2 * (hi - lo), 0.0), hi + 2 * (hi - lo)
+        return np.nan
+
+    a, b = sorted((rho_a, rho_b))
+    pad = 0.5 * (b - a) + 1e-9
+    a, b = max(a - pad, 1e-12), min(b + pad, 1.0)
+    sign = 1.0 if maximum else -1.0
+    found = minimize_scalar(
+        lambda r: -sign * beta_of(r), bounds=(a, b), method="bounded", options={"xatol": 1e-11}
+    )
+    return float(found.x), float(-sign * found.fun)

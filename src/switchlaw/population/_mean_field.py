@@ -1,0 +1,346 @@
+"""Mean-field population model with phenotype switching by a derived law.
+
+Compartments (one per phenotype ``x``), density ``rho = sum_x rho_x``:
+
+    rho_x' = a_x(rho) rho_x + (rho f_x(rho) - rho_x) / tau,
+    a_x(rho) = b_x (1 - rho) - d_x - c_x rho,
+
+with division into free space ``b_x``, death ``d_x``, optional crowding death ``c_x`` and
+cells re-deciding at rate ``1 / tau`` with the law ``q(x | y, rho)`` averaged over
+``p(y | rho)`` (``f_x``; domain notes §3–4). In the fast-switching limit (``tau=None``)
+``rho_x = rho f_x(rho)`` and ``rho' = rho g(rho)`` with ``g = sum_x f_x a_x``.
+"""
+
+from __future__ import annotations
+
+from collections import OrderedDict
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+
+from .._errors import InputError
+from .._validate import as_array, as_nonnegative, as_positive, choice
+from ..decision._solve import OBJECTIVES
+from ..laws._law import derive_law
+from ._continuation import BifurcationDiagram, Branch, CriticalPoint, locate_fold, trace_branch
+from ._scalar import Equilibrium, derivative, roots_on_unit_interval
+
+REGIMES = ("extinction", "monostable", "weak-allee", "strong-allee")
+_CACHE = 4096
+
+
+def _clip_to_range(H, densities, betas, lo, hi):
+    """Replace a final step that left the beta range by the branch's crossing of its edge."""
+    if betas.size >= 2 and not (lo <= betas[-1] <= hi):
+        edge = hi if betas[-1] > hi else lo
+        w = (edge - betas[-2]) / (betas[-1] - betas[-2])
+        guess = densities[-2] + w * (densities[-1] - densities[-2])
+        a, b = sorted((densities[-2], densities[-1]))
+        a, b = max(a - 1e-3, 1e-12), min(b + 1e-3, 1.0)
+        try:
+            guess = brentq(lambda r: H(r, edge), a, b, xtol=1e-14)
+        except ValueError:
+            pass  # no sign change in the bracket: keep the interpolated point
+        densities = np.r_[densities[:-1], guess]
+        betas = np.r_[betas[:-1], edge]
+    keep = (densities > 0) & (densities <= 1)
+    return densities[keep], betas[keep]
+
+
+def _near(branch, rho: float, beta: float, lo: float, hi: float) -> bool:
+    """Whether ``(rho, beta)`` lies on an already traced branch (scaled distance < 1e-3)."""
+    scaled = np.hypot(branch.densities - rho, (branch.betas - beta) / (hi - lo))
+    return bool(scaled.min() < 1e-3)
+
+
+def _rates(value, name: str, n: int | None = None) -> np.ndarray:
+    rates = as_array(value, name, ndim=1)
+    if (rates < 0).any():
+        i = int(np.argmax(rates < 0))
+        raise InputError(f"`{name}` rates must be >= 0; entry {i} is {float(rates[i])!r}")
+    if n is not None and rates.size != n:
+        raise InputError(f"`{name}` must have one rate per phenotype ({n}) (got {rates.size})")
+    return rates
+
+
+@dataclass(frozen=True, repr=False)
+class Trajectory:
+    """A solution of the mean-field ODE.
+
+    Attributes
+    ----------
+    times : ndarray, shape (k,)
+    compartments : ndarray, shape (k, phenotypes)
+        Phenotype densities (in the fast-switching limit, ``density * fractions``).
+    density : ndarray, shape (k,)
+    success : bool
+    message : str
+    """
+
+    times: np.ndarray
+    compartments: np.ndarray
+    density: np.ndarray
+    success: bool
+    message: str
+
+    def __repr__(self) -> str:
+        return (
+            f"Trajectory({self.times.size} times to t={self.times[-1]:.4g}, final density "
+            f"{self.density[-1]:.6g}, {'ok' if self.success else 'FAILED: ' + self.message})"
+        )
+
+
+class MeanField:
+    """Mean-field dynamics of a population whose cells switch phenotype by a derived law.
+
+    Parameters
+    ----------
+    payoff, environment :
+        As in :func:`switchlaw.derive_law`; the law is re-derived for every beta.
+    division, death : array_like, shape (phenotypes,)
+        Per-phenotype division rate into free space and death rate (per unit time, >= 0).
+    tau : float, optional
+        Decision timescale (time units); ``None`` is the fast-switching limit.
+    crowding : array_like, optional
+        Extra death per unit density (``c_x rho``), default zero.
+    objective : {"min-information", "max-entropy"}
+    phenotypes : sequence of str, optional
+
+    Notes
+    -----
+    Regimes (Stephens, Sutherland & Freckleton 1999; Courchamp, Berec & Gascoigne 2008):
+    ``"extinction"`` when no positive state is stable; ``"strong-allee"`` when zero is stable
+    (per-capita growth at low density negative) and a positive state is stable (bistable);
+    ``"weak-allee"`` when zero is unstable and per-capita growth rises near zero;
+    ``"monostable"`` otherwise. With finite ``tau`` the growth at zero is the leading
+    eigenvalue of the linearisation and "per-capita growth" is the reduced equation
+    ``sum_x f_x / (1 - tau a_x) - 1`` whose positive roots are the equilibria.
+    """
+
+    def __init__(
+        self,
+        payoff,
+        environment,
+        *,
+        division,
+        death,
+        tau=None,
+        crowding=None,
+        objective: str = "min-information",
+        phenotypes=None,
+    ):
+        self.payoff = payoff
+        self.environment = environment
+        self.division = _rates(division, "division")
+        self.death = _rates(death, "death", self.division.size)
+        self.crowding = (
+            np.zeros(self.division.size) if crowding is None
+            else _rates(crowding, "crowding", self.division.size)
+        )
+        self.tau = None if tau is None else as_positive(tau, "tau")
+        self.objective = choice(objective, "objective", OBJECTIVES)
+        self.phenotypes = phenotypes
+        self._cache: OrderedDict = OrderedDict()
+
+    # ----------------------------------------------------------------- the law
+    def fractions(self, density, beta) -> np.ndarray:
+        """Mean-field phenotype fractions ``f_x(density)`` of the law at ``beta``."""
+        key = (float(density), float(beta))
+        if key in self._cache:
+            self._cache.move_to_end(key)
+            return self._cache[key]
+        if not 0.0 <= key[0] <= 1.0:
+            raise InputError(f"`density` must be in [0, 1] (got {key[0]!r})")
+        law = derive_law(
+            self.payoff, self.environment, densities=[key[0]], beta=as_nonnegative(beta, "beta"),
+            objective=self.objective, phenotypes=self.phenotypes,
+        )
+        f = law.fractions(key[0])
+        if f.size != self.division.size:
+            raise InputError(
+                f"`division` must have one rate per phenotype ({f.size}) (got {self.division.size})"
+            )
+        self._cache[key] = f
+        if len(self._cache) > _CACHE:
+            self._cache.popitem(last=False)
+        return f
+
+    def net_rates(self, density) -> np.ndarray:
+        """``a_x(rho) = b_x (1 - rho) - d_x - c_x rho`` per phenotype (per unit time)."""
+        return self.division * (1.0 - density) - self.death - self.crowding * density
+
+    def growth(self, density, beta) -> float:
+        """Per-capita growth ``g(rho) = sum_x f_x(rho) a_x(rho)`` (fast-switching limit)."""
+        return float(self.fractions(density, beta) @ self.net_rates(density))
+
+    def reduced(self, density, beta) -> float:
+        """The scalar equation whose positive roots are the equilibria.
+
+        ``g(rho)`` in the fast-switching limit; ``sum_x f_x / (1 - tau a_x) - 1`` with finite
+        ``tau`` (``inf`` where some ``1 - tau a_x <= 0``: growth outruns switching there).
+        """
+        if self.tau is None:
+            return self.growth(density, beta)
+        denominator = 1.0 - self.tau * self.net_rates(density)
+        if (denominator <= 0).any():
+            return np.inf
+        return float(self.fractions(density, beta) @ (1.0 / denominator) - 1.0)
+
+    # --------------------------------------------------------------- dynamics
+    def rhs(self, compartments, beta) -> np.ndarray:
+        """Time derivative of the compartments (or of ``[rho]`` in the fast-switching limit)."""
+        state = np.clip(np.asarray(compartments, dtype=float), 0.0, None)
+        if self.tau is None:
+            rho = min(float(state[0]), 1.0)
+            return np.array([rho * self.growth(rho, beta)])
+        rho = min(float(state.sum()), 1.0)
+        f = self.fractions(rho, beta)
+        return self.net_rates(rho) * state + (rho * f - state) / self.tau
+
+    def trajectory(self, beta, initial, t_end, *, points: int = 201, rtol: float = 1e-8) -> Trajectory:
+        """Integrate the model from ``initial`` (a density, or compartments with finite tau)."""
+        from scipy.integrate import solve_ivp
+
+        t_end = as_positive(t_end, "t_end")
+        start = np.atleast_1d(np.asarray(initial, dtype=float))
+        if self.tau is None:
+            if start.size != 1:
+                raise InputError("`initial` must be one density in the fast-switching limit")
+        elif start.size == 1:
+            start = start[0] * self.fractions(start[0], beta)
+        if not np.isfinite(start).all() or (start < 0).any() or start.sum() > 1.0:
+            raise InputError(f"`initial` must be non-negative with total density <= 1 (got {start})")
+        times = np.linspace(0.0, t_end, points)
+        solution = solve_ivp(
+            lambda t, z: self.rhs(z, beta), (0.0, t_end), start, t_eval=times,
+            method="LSODA", rtol=rtol, atol=1e-12,
+        )
+        values = solution.y.T
+        if self.tau is None:
+            density = values[:, 0]
+            compartments = np.stack([d * self.fractions(min(max(d, 0.0), 1.0), beta) for d in density])
+        else:
+            compartments = values
+            density = values.sum(axis=1)
+        return Trajectory(solution.t, compartments, density, bool(solution.success), solution.message)
+
+    # ------------------------------------------------------------- equilibria
+    def _jacobian(self, compartments: np.ndarray, beta: float) -> np.ndarray:
+        rho = float(compartments.sum())
+        f = self.fractions(rho, beta)
+        slope = derivative(lambda r: self.fractions(r, beta), rho, step=1e-4)
+        a = self.net_rates(rho)
+        a_slope = -self.division - self.crowding
+        jac = np.diag(a - 1.0 / self.tau)
+        jac += np.outer(compartments * a_slope + (f + rho * slope) / self.tau, np.ones(f.size))
+        return jac
+
+    def _equilibrium(self, rho: float, beta: float) -> Equilibrium:
+        if self.tau is None:
+            g = self.growth(rho, beta)
+            eigen = g + rho * derivative(lambda r: self.growth(r, beta), rho, step=1e-4)
+            eigenvalues = np.array([eigen])
+            compartments = rho * self.fractions(rho, beta)
+        else:
+            if rho == 0.0:
+                compartments = np.zeros(self.division.size)
+            else:
+                compartments = rho * self.fractions(rho, beta) / (1.0 - self.tau * self.net_rates(rho))
+            eigenvalues = np.linalg.eigvals(self._jacobian(compartments, beta))
+        return Equilibrium(
+            density=float(rho), stable=bool(np.all(eigenvalues.real < 0)),
+            eigenvalues=eigenvalues, compartments=compartments,
+        )
+
+    def equilibria(self, beta, *, points: int = 201) -> list[Equilibrium]:
+        """Every equilibrium in ``[0, 1]`` at ``beta``, zero first, by increasing density."""
+        beta = as_nonnegative(beta, "beta")
+        roots = roots_on_unit_interval(lambda r: self.reduced(r, beta), points=points)
+        roots = [r for r in roots if abs(self.reduced(r, beta)) < 1e-8]
+        return [self._equilibrium(0.0, beta)] + [self._equilibrium(r, beta) for r in roots]
+
+    def low_density_growth(self, beta) -> float:
+        """Growth rate of a rare population: the leading eigenvalue at zero density."""
+        return float(np.max(self._equilibrium(0.0, as_nonnegative(beta, "beta")).eigenvalues.real))
+
+    def regime(self, beta, *, points: int = 201) -> str:
+        """One of :data:`REGIMES` at ``beta``."""
+        found = self.equilibria(beta, points=points)
+        if not any(e.stable for e in found[1:]):
+            return "extinction"
+        if found[0].stable:
+            return "strong-allee"
+        rising = derivative(lambda r: self.reduced(r, beta), 0.0, step=1e-4) > 0
+        return "weak-allee" if rising else "monostable"
+
+    def allee_threshold(self, beta, *, points: int = 201) -> float | None:
+        """Density below which the population declines (strong Allee effect), else ``None``."""
+        found = self.equilibria(beta, points=points)
+        if not found[0].stable:
+            return None
+        stable = [e.density for e in found[1:] if e.stable]
+        unstable = [e.density for e in found[1:] if not e.stable and stable and e.density < stable[0]]
+        return unstable[-1] if unstable else None
+
+    # ------------------------------------------------------------ continuation
+    def continuation(self, beta_min, beta_max, *, samples: int = 41, ds: float = 0.01) -> BifurcationDiagram:
+        """Branches of equilibria for ``beta`` in ``[beta_min, beta_max]`` and their critical points.
+
+        Positive branches are followed by pseudo-arclength continuation from the equilibria
+        at both ends of the range and from every transcritical point. Transcritical points are
+        roots in beta of the low-density growth rate (Brent's method, to 1e-12); folds are
+        turning points of a branch in beta, located as extrema of ``beta(density)``.
+        """
+        lo = as_nonnegative(beta_min, "beta_min")
+        hi = as_nonnegative(beta_max, "beta_max")
+        if not hi > lo:
+            raise InputError(f"`beta_max` must exceed `beta_min` (got {lo!r} and {hi!r})")
+        grid = np.linspace(lo, hi, samples)
+        zero = np.array([self.low_density_growth(b) for b in grid])
+        critical = []
+        for i in range(samples - 1):
+            if zero[i] == 0.0 or zero[i] * zero[i + 1] < 0:
+                beta = zero[i] == 0.0 and grid[i] or brentq(
+                    self.low_density_growth, grid[i], grid[i + 1], xtol=1e-13, rtol=4 * np.finfo(float).eps
+                )
+                critical.append(CriticalPoint(float(beta), "transcritical", 0.0))
+        H = self.reduced
+        starts = []
+        for beta, direction in ((lo, (0.0, 1.0)), (hi, (0.0, -1.0))):
+            for eq in self.equilibria(beta)[1:]:
+                starts.append((eq.density, beta, direction))
+        for point in critical:
+            starts.append((1e-9, point.beta, (1.0, 0.0)))
+        branches = []
+        for rho, beta, direction in starts:
+            if any(_near(branch, rho, beta, lo, hi) for branch in branches):
+                continue
+            densities, betas = trace_branch(
+                H, rho, beta, direction=direction, beta_min=lo, beta_max=hi, ds=ds
+            )
+            densities, betas = _clip_to_range(H, densities, betas, lo, hi)
+            if densities.size == 0:
+                continue
+            stable = np.array([self._equilibrium(r, b).stable for r, b in zip(densities, betas)])
+            branches.append(Branch(densities, betas, stable))
+            turns = np.sign(np.diff(betas))
+            for j in range(1, turns.size):
+                if turns[j - 1] != 0 and turns[j] != 0 and turns[j - 1] != turns[j]:
+                    rho_f, beta_f = locate_fold(
+                        H, densities[j - 1], densities[j + 1], betas[j], maximum=turns[j - 1] > 0
+                    )
+                    critical.append(CriticalPoint(beta_f, "fold", rho_f))
+        critical.sort(key=lambda c: c.beta)
+        return BifurcationDiagram(
+            beta_range=(lo, hi), branches=tuple(branches), zero_betas=grid,
+            zero_stable=zero < 0, critical_points=tuple(critical),
+        )
+
+    def critical_betas(self, beta_min, beta_max, **options) -> list[CriticalPoint]:
+        """Transcritical points and folds in ``[beta_min, beta_max]``, by increasing beta."""
+        return list(self.continuation(beta_min, beta_max, **options).critical_points)
+
+    def __repr__(self) -> str:
+        limit = "fast switching" if self.tau is None else f"tau={self.tau:g}"
+        return f"MeanField({self.division.size} phenotypes, {self.objective}, {limit})"

@@ -1,0 +1,126 @@
+"""Equilibria of one-dimensional population equations ``rho' = rho * g(rho)``.
+
+Every equilibrium in ``[0, 1]`` is found by bracketing sign changes of ``g`` on a grid and
+polishing with Brent's method; grid cells where ``|g|`` has a local minimum without a sign
+change are searched for touching roots (double roots at folds). Stability comes from the
+derivative of ``rho * g(rho)``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import brentq, minimize_scalar
+
+
+@dataclass(frozen=True, repr=False)
+class Equilibrium:
+    """A steady state of the population model.
+
+    Attributes
+    ----------
+    density : float
+        Total density at equilibrium.
+    stable : bool
+        True when every eigenvalue of the Jacobian has a negative real part.
+    eigenvalues : ndarray
+        Eigenvalues of the Jacobian (per unit time).
+    compartments : ndarray
+        Density of each phenotype (equal to ``density * fractions`` in the fast-switching
+        limit).
+    """
+
+    density: float
+    stable: bool
+    eigenvalues: np.ndarray
+    compartments: np.ndarray = field(default_factory=lambda: np.zeros(0))
+
+    def __repr__(self) -> str:
+        kind = "stable" if self.stable else "unstable"
+        lead = np.max(self.eigenvalues.real) if self.eigenvalues.size else float("nan")
+        return f"Equilibrium(density={self.density:.6g}, {kind}, leading eigenvalue {lead:.4g})"
+
+
+def derivative(function, x: float, step: float = 1e-4, lower: float = 0.0, upper: float = 1.0):
+    """Fourth-order finite difference: central inside ``[lower, upper]``, one-sided at its ends."""
+    if x - 2 * step >= lower and x + 2 * step <= upper:
+        return (
+            -function(x + 2 * step) + 8 * function(x + step) - 8 * function(x - step) + function(x - 2 * step)
+        ) / (12 * step)
+    sign = 1.0 if x - 2 * step < lower else -1.0
+    values = [function(x + k * sign * step) for k in range(5)]
+    return sign * (-25 * values[0] + 48 * values[1] - 36 * values[2] + 16 * values[3] - 3 * values[4]) / (12 * step)
+
+
+def roots_on_unit_interval(function, *, points: int = 201, xtol: float = 1e-13) -> list[float]:
+    """Every root of ``function`` in ``(0, 1]``: sign changes on a grid, polished by Brent's method.
+
+    Touching roots (no sign change) are found by minimising ``|function|`` in grid cells where
+    it has a local minimum, and accepted when the minimum is zero to 1e-12.
+    """
+    grid = np.linspace(0.0, 1.0, points)
+    values = np.array([function(x) for x in grid])
+    roots = []
+    for i in range(1, points):
+        a, b = grid[i - 1], grid[i]
+        fa, fb = values[i - 1], values[i]
+        if fb == 0.0:
+            roots.append(float(b))
+        elif fa * fb < 0:
+            roots.append(float(brentq(function, a, b, xtol=xtol, rtol=4 * np.finfo(float).eps)))
+    # Cells where |g| dips without a sign change may hide a pair of close roots (or a double
+    # root at a fold): look at the signed extremum there.
+    magnitude = np.abs(values)
+    for i in range(1, points - 1):
+        if not (magnitude[i] < magnitude[i - 1] and magnitude[i] <= magnitude[i + 1]):
+            continue
+        if values[i - 1] * values[i] <= 0 or values[i] * values[i + 1] <= 0:
+            continue
+        sign = np.sign(values[i])
+        a, b = grid[i - 1], grid[i + 1]
+        found = minimize_scalar(lambda x: sign * function(x), bounds=(a, b), method="bounded",
+                                options={"xatol": 1e-12})
+        low = sign * found.fun
+        if abs(low) <= 1e-12:
+            candidates = [float(found.x)]
+        elif np.sign(low) != sign:
+            candidates = [
+                float(brentq(function, a, found.x, xtol=xtol, rtol=4 * np.finfo(float).eps)),
+                float(brentq(function, found.x, b, xtol=xtol, rtol=4 * np.finfo(float).eps)),
+            ]
+        else:
+            candidates = []
+        roots.extend(c for c in candidates if all(abs(c - r) > 1e-9 for r in roots))
+    return sorted(r for r in roots if r > 0.0)
+
+
+def equilibria_of(per_capita_growth, *, points: int = 201) -> list[Equilibrium]:
+    """Equilibria in ``[0, 1]`` of ``rho' = rho * g(rho)`` for a user's per-capita growth ``g``.
+
+    Zero first, then every positive root of ``g`` by increasing density; eigenvalues are
+    ``d/drho [rho g(rho)]`` by a fourth-order central difference.
+
+    Examples
+    --------
+    The strong-Allee equation ``r N (N/A - 1)(1 - N/K)`` with ``A = 0.2``, ``K = 0.9``:
+
+    >>> found = equilibria_of(lambda n: 1.0 * (n / 0.2 - 1) * (1 - n / 0.9))
+    >>> [round(e.density, 10) for e in found], [e.stable for e in found]
+    ([0.0, 0.2, 0.9], [True, False, True])
+    """
+    if not callable(per_capita_growth):
+        from .._errors import InputError
+
+        raise InputError(
+            f"`per_capita_growth` must be a callable density -> rate (got {type(per_capita_growth).__name__})"
+        )
+
+    def flow(rho):
+        return rho * per_capita_growth(rho)
+
+    found = []
+    for rho in [0.0] + roots_on_unit_interval(per_capita_growth, points=points):
+        eigen = derivative(flow, rho, step=1e-4)
+        found.append(Equilibrium(float(rho), bool(eigen < 0), np.array([eigen]), np.array([rho])))
+    return found
