@@ -147,3 +147,39 @@ def test_finite_tau_approaches_the_fast_switching_limit():
 def test_bad_input(call, pattern):
     with pytest.raises(sl.InputError, match=pattern):
         call()
+
+
+def test_continuation_in_cost_per_bit_and_death_rate_match_closed_forms():
+    # beta = ln 2 / cost (domain notes §2.4), so beta_T = ln 4 is cost_T = ln 2 / ln 4 = 1/2.
+    diagram = model().continuation(0.1, 2.0, parameter="cost_per_bit")
+    (point,) = [c for c in diagram.critical_points if c.kind == "transcritical"]
+    assert point.value == pytest.approx(0.5, abs=1e-10)
+    assert point.beta == pytest.approx(math.log(4), abs=1e-9)
+    # Scaling death by s at fixed beta: g(0) = q b - s d with q = 1/(1 + e^beta) (derived as in
+    # the transcritical test above), so s_T = q b / d.
+    beta = 1.0
+    diagram = model().continuation(0.2, 3.0, parameter="death_scale", beta=beta)
+    (point,) = [c for c in diagram.critical_points if c.kind == "transcritical"]
+    assert point.value == pytest.approx((1 / (1 + math.e)) * 1.0 / 0.2, abs=1e-10)
+
+
+def test_regime_map_matches_pointwise_classification():
+    mf = model()
+    betas = np.linspace(0.2, 8.0, 9)
+    scales = np.array([0.7, 1.0, 1.3])
+    regime_map = mf.regime_map(betas, "death_scale", scales)
+    for i, scale in enumerate(scales):
+        variant = sl.MeanField(GROW_WHEN_CROWDED, hexagonal, division=[1.0, 0.0],
+                               death=[0.2 * scale, 0.2 * scale], objective="max-entropy")
+        direct = [variant.regime(b) for b in betas]
+        assert list(regime_map.regimes[i]) == direct
+    assert "strong-allee" in regime_map.regimes and "extinction" in regime_map.regimes
+
+
+def test_tau_continuation_needs_a_finite_tau():
+    with pytest.raises(sl.InputError, match="needs a model with a finite `tau`"):
+        model().continuation(0.5, 2.0, parameter="tau", beta=1.0)
+    with pytest.raises(sl.InputError, match="`beta` must be given to continue in 'death_scale'"):
+        model().continuation(0.5, 2.0, parameter="death_scale")
+    with pytest.raises(sl.InputError, match="`parameter` must be one of"):
+        model().continuation(0.5, 2.0, parameter="rho")

@@ -48,7 +48,9 @@ from .information import (
 )
 
 from .population import (
+    PARAMETERS,
     REGIMES,
+    RegimeMap,
     BifurcationDiagram,
     Branch,
     CriticalPoint,
@@ -57,7 +59,7 @@ from .population import (
     Trajectory,
     equilibria_of,
 )
-from .plotting import plot_bifurcation, plot_law, plot_tradeoff
+from .plotting import plot_bifurcation, plot_law, plot_regime_map, plot_tradeoff
 
 __version__ = "0.1.0"
 
@@ -80,6 +82,9 @@ __all__ = [
     "plot_law",
     "plot_tradeoff",
     "plot_bifurcation",
+    "plot_regime_map",
+    "PARAMETERS",
+    "RegimeMap",
     "REGIMES",
     "BifurcationDiagram",
     "Branch",

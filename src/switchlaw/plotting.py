@@ -96,26 +96,73 @@ def plot_bifurcation(diagram, *, ax=None):
 
     if ax is None:
         _, ax = plt.subplots(figsize=(6, 4), constrained_layout=True)
-    lo, hi = diagram.beta_range
+    lo, hi = diagram.value_range
+    label = "β" if diagram.parameter == "beta" else diagram.parameter
     stable_zero = np.asarray(diagram.zero_stable)
-    betas = np.asarray(diagram.zero_betas)
+    betas = np.asarray(diagram.zero_values)
     for mask, style in ((stable_zero, "-"), (~stable_zero, "--")):
         ax.plot(np.where(mask, betas, np.nan), np.zeros_like(betas), style, color="k", lw=1.5)
     for branch in diagram.branches:
         for mask, style in ((branch.stable, "-"), (~branch.stable, "--")):
             segment = np.where(mask, branch.densities, np.nan)
-            ax.plot(branch.betas, segment, style, color="C0", lw=1.8)
+            ax.plot(branch.values, segment, style, color="C0", lw=1.8)
     for point in diagram.critical_points:
         marker = "o" if point.kind == "fold" else "s"
-        ax.plot(point.beta, point.density, marker, color="C3", ms=6)
-        ax.annotate(f"{point.kind}\nβ={point.beta:.4g}", (point.beta, point.density),
+        ax.plot(point.value, point.density, marker, color="C3", ms=6)
+        ax.annotate(f"{point.kind}\n{label}={point.value:.4g}", (point.value, point.density),
                     textcoords="offset points", xytext=(4, 6), fontsize=8, color="C3")
     ax.plot([], [], "-", color="k", label="stable")
     ax.plot([], [], "--", color="k", label="unstable")
     ax.set_xlim(lo, hi)
     ax.set_ylim(-0.03, 1.03)
-    ax.set_xlabel("β (nats per payoff unit)")
+    ax.set_xlabel("β (nats per payoff unit)" if label == "β" else diagram.parameter)
     ax.set_ylabel("equilibrium density")
-    ax.set_title("equilibria against sensitivity β")
+    ax.set_title(f"equilibria against {label}")
     ax.legend(frameon=False, loc="upper left")
+    return ax
+
+
+#: Colours of the regimes in regime maps (our own choice).
+REGIME_COLOURS = {
+    "extinction": "#8c8c8c",
+    "monostable": "#4c9f70",
+    "weak-allee": "#e0b040",
+    "strong-allee": "#c0504d",
+}
+
+
+def plot_regime_map(regime_map, *, ax=None):
+    """Regimes over beta x a second parameter, with the critical-beta curves drawn on top.
+
+    Parameters
+    ----------
+    regime_map : RegimeMap
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+    """
+    import matplotlib.pyplot as plt
+    from matplotlib.colors import ListedColormap
+    from matplotlib.patches import Patch
+
+    from .population import REGIMES
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(6, 4.5), constrained_layout=True)
+    cmap = ListedColormap([REGIME_COLOURS[name] for name in REGIMES])
+    ax.pcolormesh(regime_map.betas, regime_map.values, regime_map.codes, cmap=cmap,
+                  vmin=-0.5, vmax=len(REGIMES) - 0.5, shading="nearest")
+    for kind, marker in (("transcritical", "s"), ("fold", "o")):
+        xs = [c.beta for row in regime_map.critical for c in row if c.kind == kind]
+        ys = [v for v, row in zip(regime_map.values, regime_map.critical) for c in row if c.kind == kind]
+        if xs:
+            ax.plot(xs, ys, marker, ms=2.5, color="k", label=kind)
+    handles = [Patch(color=REGIME_COLOURS[name], label=name) for name in REGIMES]
+    ax.legend(handles=handles + ax.get_legend_handles_labels()[0], frameon=True, fontsize=8,
+              loc="upper right")
+    ax.set_xlabel("β (nats per payoff unit)")
+    ax.set_ylabel(regime_map.parameter)
+    ax.set_title("population regimes")
     return ax

@@ -2,11 +2,13 @@
 equilibria, Allee regimes, continuation in beta)."""
 
 from ._continuation import BifurcationDiagram, Branch, CriticalPoint
-from ._mean_field import REGIMES, MeanField, Trajectory
+from ._mean_field import PARAMETERS, REGIMES, MeanField, RegimeMap, Trajectory
 from ._scalar import Equilibrium, equilibria_of
 
 __all__ = [
+    "PARAMETERS",
     "REGIMES",
+    "RegimeMap",
     "BifurcationDiagram",
     "Branch",
     "CriticalPoint",

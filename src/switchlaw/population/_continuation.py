@@ -19,63 +19,88 @@ _STEP = 1e-6
 
 @dataclass(frozen=True, repr=False)
 class CriticalPoint:
-    """A beta where the equilibria change qualitatively.
+    """A parameter value where the equilibria change qualitatively.
 
     Attributes
     ----------
     beta : float
+        Sensitivity at the point (the located value when continuing in beta).
     kind : str
         ``"transcritical"`` (the zero state changes stability as a positive branch crosses it)
         or ``"fold"`` (two positive equilibria meet and vanish).
     density : float
         Density of the equilibrium at the critical point (0 for transcritical points).
+    parameter : str
+        The continued parameter (``"beta"``, ``"cost_per_bit"``, ``"death_scale"``,
+        ``"division_scale"`` or ``"tau"``).
+    value : float
+        The located value of that parameter.
     """
 
     beta: float
     kind: str
     density: float
+    parameter: str = "beta"
+    value: float = float("nan")
 
     def __repr__(self) -> str:
-        return f"CriticalPoint({self.kind} at beta={self.beta:.10g}, density={self.density:.6g})"
+        where = f"beta={self.beta:.10g}" if self.parameter == "beta" else (
+            f"{self.parameter}={self.value:.10g} (beta={self.beta:.6g})"
+        )
+        return f"CriticalPoint({self.kind} at {where}, density={self.density:.6g})"
 
 
 @dataclass(frozen=True, repr=False)
 class Branch:
-    """Points along one branch of positive equilibria, in continuation order."""
+    """Points along one branch of positive equilibria, in continuation order.
+
+    ``values`` holds the continued parameter (beta unless the diagram says otherwise).
+    """
 
     densities: np.ndarray
-    betas: np.ndarray
+    values: np.ndarray
     stable: np.ndarray
+
+    @property
+    def betas(self) -> np.ndarray:
+        """Alias of ``values`` for continuation in beta."""
+        return self.values
 
     def __repr__(self) -> str:
         return (
-            f"Branch({self.densities.size} points, beta {self.betas.min():.4g}–{self.betas.max():.4g}, "
-            f"density {self.densities.min():.4g}–{self.densities.max():.4g})"
+            f"Branch({self.densities.size} points, parameter {self.values.min():.4g}–"
+            f"{self.values.max():.4g}, density {self.densities.min():.4g}–{self.densities.max():.4g})"
         )
 
 
 @dataclass(frozen=True, repr=False)
 class BifurcationDiagram:
-    """Equilibrium branches over a beta range and the critical points on them.
+    """Equilibrium branches over a parameter range and the critical points on them.
 
     Attributes
     ----------
-    beta_range : tuple of float
+    parameter : str
+    value_range : tuple of float
     branches : tuple of Branch
         Positive equilibria (the zero state is always an equilibrium).
-    zero_stable : callable-free summary: ndarray of (beta, stable) samples of the zero state.
-    critical_points : tuple of CriticalPoint, by increasing beta
+    zero_values, zero_stable : ndarray
+        Samples of the parameter and whether the zero state is stable there.
+    critical_points : tuple of CriticalPoint, by increasing parameter value
     """
 
-    beta_range: tuple
+    parameter: str
+    value_range: tuple
     branches: tuple
-    zero_betas: np.ndarray
+    zero_values: np.ndarray
     zero_stable: np.ndarray
     critical_points: tuple
 
     def __repr__(self) -> str:
-        crit = ", ".join(f"{c.kind} {c.beta:.6g}" for c in self.critical_points) or "none"
-        return f"BifurcationDiagram({len(self.branches)} branches, critical points: {crit})"
+        crit = ", ".join(f"{c.kind} {c.value:.6g}" for c in self.critical_points) or "none"
+        return (
+            f"BifurcationDiagram(in {self.parameter}, {len(self.branches)} branches, "
+            f"critical points: {crit})"
+        )
 
 
 def _gradient(H, rho, beta):

@@ -13,6 +13,7 @@ cells re-deciding at rate ``1 / tau`` with the law ``q(x | y, rho)`` averaged ov
 
 from __future__ import annotations
 
+import copy
 from collections import OrderedDict
 from dataclasses import dataclass
 
@@ -21,12 +22,15 @@ from scipy.optimize import brentq
 
 from .._errors import InputError
 from .._validate import as_array, as_nonnegative, as_positive, choice
+from ..decision._costs import beta_from_cost
 from ..decision._solve import OBJECTIVES
 from ..laws._law import derive_law
 from ._continuation import BifurcationDiagram, Branch, CriticalPoint, locate_fold, trace_branch
 from ._scalar import Equilibrium, derivative, roots_on_unit_interval
 
 REGIMES = ("extinction", "monostable", "weak-allee", "strong-allee")
+#: Scalar parameters a model can be continued in.
+PARAMETERS = ("beta", "cost_per_bit", "death_scale", "division_scale", "tau")
 _CACHE = 4096
 
 
@@ -284,63 +288,213 @@ class MeanField:
         return unstable[-1] if unstable else None
 
     # ------------------------------------------------------------ continuation
-    def continuation(self, beta_min, beta_max, *, samples: int = 41, ds: float = 0.01) -> BifurcationDiagram:
-        """Branches of equilibria for ``beta`` in ``[beta_min, beta_max]`` and their critical points.
+    def along(self, parameter: str, *, beta=None) -> "_Along":
+        """The model as a family in one scalar parameter (see :data:`PARAMETERS`)."""
+        choice(parameter, "parameter", PARAMETERS)
+        if parameter != "beta" and parameter != "cost_per_bit":
+            if beta is None:
+                raise InputError(f"`beta` must be given to continue in {parameter!r}")
+            beta = as_nonnegative(beta, "beta")
+        return _Along(self, parameter, beta)
+
+    def continuation(
+        self, start, stop, *, parameter: str = "beta", beta=None, samples: int = 41, ds: float = 0.01
+    ) -> BifurcationDiagram:
+        """Branches of equilibria for a parameter in ``[start, stop]`` and their critical points.
 
         Positive branches are followed by pseudo-arclength continuation from the equilibria
         at both ends of the range and from every transcritical point. Transcritical points are
-        roots in beta of the low-density growth rate (Brent's method, to 1e-12); folds are
-        turning points of a branch in beta, located as extrema of ``beta(density)``.
+        roots of the low-density growth rate in the parameter (Brent's method, to 1e-12);
+        folds are turning points of a branch, located as extrema of ``value(density)``.
+
+        Parameters
+        ----------
+        start, stop : float
+            Range of the parameter.
+        parameter : {"beta", "cost_per_bit", "death_scale", "division_scale", "tau"}
+            ``*_scale`` multiplies every phenotype's rate; ``tau`` needs a finite-tau model.
+        beta : float
+            Fixed sensitivity when continuing in another parameter.
         """
+        family = self.along(parameter, beta=beta)
+        lo = family.check(start, "start")
+        hi = family.check(stop, "stop")
+        if not hi > lo:
+            raise InputError(f"`stop` must exceed `start` (got {lo!r} and {hi!r})")
+        grid = np.linspace(lo, hi, samples)
+        zero = np.array([family.low_density_growth(v) for v in grid])
+        critical = []
+        for i in range(samples - 1):
+            if zero[i] == 0.0:
+                critical.append(family.point(float(grid[i]), "transcritical", 0.0))
+            elif zero[i] * zero[i + 1] < 0:
+                value = brentq(family.low_density_growth, grid[i], grid[i + 1], xtol=1e-13,
+                               rtol=4 * np.finfo(float).eps)
+                critical.append(family.point(float(value), "transcritical", 0.0))
+        H = family.reduced
+        starts = []
+        for value, direction in ((lo, (0.0, 1.0)), (hi, (0.0, -1.0))):
+            for eq in family.equilibria(value)[1:]:
+                starts.append((eq.density, value, direction))
+        for point in critical:
+            starts.append((1e-9, point.value, (1.0, 0.0)))
+        branches = []
+        for rho, value, direction in starts:
+            if any(_near(branch, rho, value, lo, hi) for branch in branches):
+                continue
+            densities, values = trace_branch(
+                H, rho, value, direction=direction, beta_min=lo, beta_max=hi, ds=ds
+            )
+            densities, values = _clip_to_range(H, densities, values, lo, hi)
+            if densities.size == 0:
+                continue
+            stable = np.array([family.equilibrium(r, v).stable for r, v in zip(densities, values)])
+            branches.append(Branch(densities, values, stable))
+            turns = np.sign(np.diff(values))
+            for j in range(1, turns.size):
+                if turns[j - 1] != 0 and turns[j] != 0 and turns[j - 1] != turns[j]:
+                    rho_f, value_f = locate_fold(
+                        H, densities[j - 1], densities[j + 1], values[j], maximum=turns[j - 1] > 0
+                    )
+                    critical.append(family.point(value_f, "fold", rho_f))
+        critical.sort(key=lambda c: c.value)
+        return BifurcationDiagram(
+            parameter=parameter, value_range=(lo, hi), branches=tuple(branches),
+            zero_values=grid, zero_stable=zero < 0, critical_points=tuple(critical),
+        )
+
+    def critical_betas(self, beta_min, beta_max, **options) -> list[CriticalPoint]:
+        """Transcritical points and folds for beta in ``[beta_min, beta_max]``, by increasing beta."""
         lo = as_nonnegative(beta_min, "beta_min")
         hi = as_nonnegative(beta_max, "beta_max")
         if not hi > lo:
             raise InputError(f"`beta_max` must exceed `beta_min` (got {lo!r} and {hi!r})")
-        grid = np.linspace(lo, hi, samples)
-        zero = np.array([self.low_density_growth(b) for b in grid])
-        critical = []
-        for i in range(samples - 1):
-            if zero[i] == 0.0 or zero[i] * zero[i + 1] < 0:
-                beta = zero[i] == 0.0 and grid[i] or brentq(
-                    self.low_density_growth, grid[i], grid[i + 1], xtol=1e-13, rtol=4 * np.finfo(float).eps
-                )
-                critical.append(CriticalPoint(float(beta), "transcritical", 0.0))
-        H = self.reduced
-        starts = []
-        for beta, direction in ((lo, (0.0, 1.0)), (hi, (0.0, -1.0))):
-            for eq in self.equilibria(beta)[1:]:
-                starts.append((eq.density, beta, direction))
-        for point in critical:
-            starts.append((1e-9, point.beta, (1.0, 0.0)))
-        branches = []
-        for rho, beta, direction in starts:
-            if any(_near(branch, rho, beta, lo, hi) for branch in branches):
-                continue
-            densities, betas = trace_branch(
-                H, rho, beta, direction=direction, beta_min=lo, beta_max=hi, ds=ds
-            )
-            densities, betas = _clip_to_range(H, densities, betas, lo, hi)
-            if densities.size == 0:
-                continue
-            stable = np.array([self._equilibrium(r, b).stable for r, b in zip(densities, betas)])
-            branches.append(Branch(densities, betas, stable))
-            turns = np.sign(np.diff(betas))
-            for j in range(1, turns.size):
-                if turns[j - 1] != 0 and turns[j] != 0 and turns[j - 1] != turns[j]:
-                    rho_f, beta_f = locate_fold(
-                        H, densities[j - 1], densities[j + 1], betas[j], maximum=turns[j - 1] > 0
-                    )
-                    critical.append(CriticalPoint(beta_f, "fold", rho_f))
-        critical.sort(key=lambda c: c.beta)
-        return BifurcationDiagram(
-            beta_range=(lo, hi), branches=tuple(branches), zero_betas=grid,
-            zero_stable=zero < 0, critical_points=tuple(critical),
-        )
+        return list(self.continuation(lo, hi, **options).critical_points)
 
-    def critical_betas(self, beta_min, beta_max, **options) -> list[CriticalPoint]:
-        """Transcritical points and folds in ``[beta_min, beta_max]``, by increasing beta."""
-        return list(self.continuation(beta_min, beta_max, **options).critical_points)
+    def regime_map(self, betas, parameter: str, values, *, points: int = 201) -> "RegimeMap":
+        """Regimes over a grid of beta x a second parameter, from critical-point continuation.
+
+        For each value of the second parameter the critical betas are found by continuation in
+        beta (:meth:`critical_betas`); equilibria change only there, so each interval between
+        consecutive critical betas is classified at its two ends and midpoint and filled when
+        they agree (point by point otherwise: weak Allee vs monostable is decided by the slope
+        of growth at zero density, which can change inside an interval).
+        """
+        beta_grid = as_array(betas, "betas", ndim=1)
+        value_grid = as_array(values, "values", ndim=1)
+        if beta_grid.size < 2 or not (np.diff(beta_grid) > 0).all():
+            raise InputError("`betas` must be strictly increasing, at least 2 of them")
+        choice(parameter, "parameter", PARAMETERS[2:])
+        codes = np.empty((value_grid.size, beta_grid.size), dtype=int)
+        curves = []
+        for i, value in enumerate(value_grid):
+            variant = self.along(parameter, beta=beta_grid[0]).model_at(value)
+            found = variant.critical_betas(beta_grid[0], beta_grid[-1])
+            curves.append(tuple(found))
+            cuts = [beta_grid[0]] + [c.beta for c in found] + [beta_grid[-1]]
+            for a, b in zip(cuts[:-1], cuts[1:]):
+                inside = np.flatnonzero((beta_grid >= a) & (beta_grid <= b))
+                if not inside.size:
+                    continue
+                # Weak Allee vs monostable turns on the slope of growth at zero density, which
+                # is no bifurcation: if the interval's ends disagree, classify every point.
+                ends = {variant.regime(beta_grid[j], points=points) for j in (inside[0], inside[-1])}
+                ends.add(variant.regime(0.5 * (a + b), points=points))
+                if len(ends) == 1:
+                    codes[i, inside] = REGIMES.index(ends.pop())
+                else:
+                    for j in inside:
+                        codes[i, j] = REGIMES.index(variant.regime(beta_grid[j], points=points))
+        return RegimeMap(beta_grid, parameter, value_grid, codes, tuple(curves))
 
     def __repr__(self) -> str:
         limit = "fast switching" if self.tau is None else f"tau={self.tau:g}"
         return f"MeanField({self.division.size} phenotypes, {self.objective}, {limit})"
+
+
+class _Along:
+    """A model seen as a one-parameter family (shares the model's cache of laws)."""
+
+    def __init__(self, model: MeanField, parameter: str, beta):
+        self.model = model
+        self.parameter = parameter
+        self.beta = beta
+
+    def check(self, value, name: str) -> float:
+        number = as_nonnegative(value, name)
+        if self.parameter in ("cost_per_bit", "tau") and number == 0:
+            raise InputError(f"`{name}` must be > 0 for {self.parameter!r} (got {number!r})")
+        return number
+
+    def model_at(self, value) -> MeanField:
+        if self.parameter in ("beta", "cost_per_bit"):
+            return self.model
+        variant = copy.copy(self.model)
+        if self.parameter == "death_scale":
+            variant.death = self.model.death * value
+            variant.crowding = self.model.crowding * value
+        elif self.parameter == "division_scale":
+            variant.division = self.model.division * value
+        else:
+            if self.model.tau is None:
+                raise InputError("continuing in 'tau' needs a model with a finite `tau`")
+            variant.tau = float(value)
+        return variant
+
+    def beta_at(self, value) -> float:
+        if self.parameter == "beta":
+            return float(value)
+        if self.parameter == "cost_per_bit":
+            return beta_from_cost(value)
+        return self.beta
+
+    def reduced(self, rho, value):
+        if self.parameter == "cost_per_bit" and value <= 0:
+            return np.nan
+        return self.model_at(value).reduced(rho, self.beta_at(value))
+
+    def low_density_growth(self, value):
+        return self.model_at(value).low_density_growth(self.beta_at(value))
+
+    def equilibria(self, value):
+        return self.model_at(value).equilibria(self.beta_at(value))
+
+    def equilibrium(self, rho, value):
+        return self.model_at(value)._equilibrium(rho, self.beta_at(value))
+
+    def point(self, value: float, kind: str, density: float) -> CriticalPoint:
+        return CriticalPoint(self.beta_at(value), kind, density, self.parameter, float(value))
+
+
+@dataclass(frozen=True, repr=False)
+class RegimeMap:
+    """Regimes over beta x a second parameter.
+
+    Attributes
+    ----------
+    betas : ndarray, shape (k,)
+    parameter : str
+    values : ndarray, shape (v,)
+    codes : ndarray of int, shape (v, k)
+        Index into :data:`REGIMES`.
+    critical : tuple of tuples of CriticalPoint
+        The critical betas found for each value of the second parameter.
+    """
+
+    betas: np.ndarray
+    parameter: str
+    values: np.ndarray
+    codes: np.ndarray
+    critical: tuple
+
+    @property
+    def regimes(self) -> np.ndarray:
+        """Regime names, shape (v, k)."""
+        return np.asarray(REGIMES, dtype=object)[self.codes]
+
+    def __repr__(self) -> str:
+        seen = sorted({REGIMES[c] for c in np.unique(self.codes)})
+        return (
+            f"RegimeMap({self.values.size} {self.parameter} x {self.betas.size} beta, "
+            f"regimes: {', '.join(seen)})"
+        )
