@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import entr, log_softmax
+from scipy.special import entr
 
 from .._errors import InputError
 from .._validate import as_distribution, as_nonnegative, as_payoff, choice
@@ -59,7 +59,9 @@ def max_entropy_policy(payoff: np.ndarray, beta: float, reference: np.ndarray | 
     if reference is not None:
         with np.errstate(divide="ignore"):
             logits = logits + np.log(reference)[None, :]
-    return np.exp(log_softmax(logits, axis=1))
+    logits = logits - logits.max(axis=1, keepdims=True)
+    q = np.exp(logits)
+    return q / q.sum(axis=1, keepdims=True)
 
 
 def solve(

@@ -75,7 +75,7 @@ def payoff_table(payoff, environment: Environment, phenotypes=None, *, where: st
         columns = []
         for name in names:
             column = np.asarray(payoff[name](values), dtype=float)
-            columns.append(np.broadcast_to(column, (rows,)) if column.ndim <= 1 else column)
+            columns.append(column if column.shape == (rows,) else np.broadcast_to(column, (rows,)))
         table = np.column_stack(columns)
     elif callable(payoff):
         table = np.asarray(payoff(environment), dtype=float)

@@ -117,7 +117,7 @@ def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_po
 
     ``direction`` is ``(d_rho, d_beta)``: the first tangent has a positive dot product with it.
     Stops when the branch leaves ``beta_min <= beta <= beta_max`` or ``0 < rho <= 1``.
-    Returns arrays of densities and betas.
+    Returns arrays of densities, betas, and ``dH/drho`` at each point.
     """
     width = beta_max - beta_min
     scale = np.array([1.0, width])
@@ -137,25 +137,26 @@ def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_po
     if tangent @ (np.asarray(direction, dtype=float) * np.array([1.0, 1.0 / width])) < 0:
         tangent = -tangent
     points = [z.copy()]
+    slopes = [g[0] / scale[0]]
     step = ds
     while len(points) < max_points and step > 1e-9:
         guess = z + step * tangent
         trial = guess.copy()
         ok = False
-        for _ in range(8):
+        # Chord Newton: the gradient at the last accepted point serves every iteration.
+        system = np.array([g, tangent])
+        for _ in range(10):
             value = h_scaled(trial)
             if not np.isfinite(value):
                 break
-            g = grad_scaled(trial)
-            system = np.array([g, tangent])
             rhs = -np.array([value, tangent @ (trial - guess)])
             try:
                 delta = np.linalg.solve(system, rhs)
             except np.linalg.LinAlgError:
                 break
             trial = trial + delta
-            if np.abs(delta).max() < 1e-11:
-                ok = abs(h_scaled(trial)) < 1e-9
+            if np.abs(delta).max() < 1e-12:
+                ok = abs(h_scaled(trial)) < 1e-10
                 break
         if not ok:
             step *= 0.5
@@ -166,11 +167,12 @@ def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_po
             new_tangent = -new_tangent
         z, tangent = trial, new_tangent
         points.append(z.copy())
-        step = min(step * 1.5, 4 * ds)
+        slopes.append(g[0] / scale[0])
+        step = min(step * 1.3, 2 * ds)
         if not (0.0 < z[0] <= 1.0) or not (0.0 <= z[1] <= 1.0):
             break
     arr = np.array(points)
-    return arr[:, 0], beta_min + arr[:, 1] * width
+    return arr[:, 0], beta_min + arr[:, 1] * width, np.array(slopes)
 
 
 def locate_fold(H, rho_a, rho_b, beta_guess, *, maximum: bool) -> tuple[float, float]:

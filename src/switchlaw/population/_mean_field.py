@@ -24,7 +24,10 @@ from .._errors import InputError
 from .._validate import as_array, as_nonnegative, as_positive, choice
 from ..decision._costs import beta_from_cost
 from ..decision._solve import OBJECTIVES
-from ..laws._law import derive_law
+from ..decision._minimum_information import minimum_information_marginal
+from ..decision._solve import max_entropy_policy
+from ..laws._law import _sensed
+from ..laws._payoffs import payoff_table
 from ._continuation import BifurcationDiagram, Branch, CriticalPoint, locate_fold, trace_branch
 from ._scalar import Equilibrium, derivative, roots_on_unit_interval
 
@@ -34,8 +37,8 @@ PARAMETERS = ("beta", "cost_per_bit", "death_scale", "division_scale", "tau")
 _CACHE = 4096
 
 
-def _clip_to_range(H, densities, betas, lo, hi):
-    """Replace a final step that left the beta range by the branch's crossing of its edge."""
+def _clip_to_range(H, densities, betas, stable, lo, hi):
+    """Replace a final step that left the range by the branch's crossing of its edge."""
     if betas.size >= 2 and not (lo <= betas[-1] <= hi):
         edge = hi if betas[-1] > hi else lo
         w = (edge - betas[-2]) / (betas[-1] - betas[-2])
@@ -48,8 +51,9 @@ def _clip_to_range(H, densities, betas, lo, hi):
             pass  # no sign change in the bracket: keep the interpolated point
         densities = np.r_[densities[:-1], guess]
         betas = np.r_[betas[:-1], edge]
+        stable = np.r_[stable[:-1], stable[-2]]
     keep = (densities > 0) & (densities <= 1)
-    return densities[keep], betas[keep]
+    return densities[keep], betas[keep], stable[keep]
 
 
 def _near(branch, rho: float, beta: float, lo: float, hi: float) -> bool:
@@ -146,6 +150,7 @@ class MeanField:
         self.objective = choice(objective, "objective", OBJECTIVES)
         self.phenotypes = phenotypes
         self._cache: OrderedDict = OrderedDict()
+        self._last_marginal = None
 
     # ----------------------------------------------------------------- the law
     def fractions(self, density, beta) -> np.ndarray:
@@ -156,11 +161,7 @@ class MeanField:
             return self._cache[key]
         if not 0.0 <= key[0] <= 1.0:
             raise InputError(f"`density` must be in [0, 1] (got {key[0]!r})")
-        law = derive_law(
-            self.payoff, self.environment, densities=[key[0]], beta=as_nonnegative(beta, "beta"),
-            objective=self.objective, phenotypes=self.phenotypes,
-        )
-        f = law.fractions(key[0])
+        f = self._derive_fractions(key[0], as_nonnegative(beta, "beta"))
         if f.size != self.division.size:
             raise InputError(
                 f"`division` must have one rate per phenotype ({f.size}) (got {self.division.size})"
@@ -169,6 +170,18 @@ class MeanField:
         if len(self._cache) > _CACHE:
             self._cache.popitem(last=False)
         return f
+
+    def _derive_fractions(self, rho: float, beta: float) -> np.ndarray:
+        """``f_x(rho)``: for min-information the optimal marginal itself; else ``p @ q``."""
+        env = _sensed(self.environment, rho)
+        table, _ = payoff_table(self.payoff, env, self.phenotypes, where=f" at density {rho:g}")
+        u = env.sensed_payoff(table)
+        if self.objective == "max-entropy":
+            return env.probs @ max_entropy_policy(u, beta, None)
+        r, record, _ = minimum_information_marginal(u, env.probs, beta, start=self._last_marginal)
+        if record.converged and r.size == u.shape[1]:
+            self._last_marginal = r
+        return r
 
     def net_rates(self, density) -> np.ndarray:
         """``a_x(rho) = b_x (1 - rho) - d_x - c_x rho`` per phenotype (per unit time)."""
@@ -342,13 +355,17 @@ class MeanField:
         for rho, value, direction in starts:
             if any(_near(branch, rho, value, lo, hi) for branch in branches):
                 continue
-            densities, values = trace_branch(
+            densities, values, slopes = trace_branch(
                 H, rho, value, direction=direction, beta_min=lo, beta_max=hi, ds=ds
             )
-            densities, values = _clip_to_range(H, densities, values, lo, hi)
+            if self.tau is None:
+                # rho' = rho g(rho): the eigenvalue at a positive root is rho g'(rho).
+                stable = slopes < 0
+            else:
+                stable = np.array([family.equilibrium(r, v).stable for r, v in zip(densities, values)])
+            densities, values, stable = _clip_to_range(H, densities, values, stable, lo, hi)
             if densities.size == 0:
                 continue
-            stable = np.array([family.equilibrium(r, v).stable for r, v in zip(densities, values)])
             branches.append(Branch(densities, values, stable))
             turns = np.sign(np.diff(values))
             for j in range(1, turns.size):
