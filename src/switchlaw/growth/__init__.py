@@ -1,0 +1,33 @@
+"""Stage 3 of the pipeline: what a switching law is worth in long-run growth when the
+environment fluctuates — bet hedging, the value of a cue, the price of sensing, and growth
+with phenotype switching in discrete generations and in continuous time."""
+
+from ._bet_hedging import bet_hedging, cue_value
+from ._continuous import continuous_growth, switching_generator
+from ._cues import symmetric_cue
+from ._environments import MarkovEnvironment, PeriodicEnvironment, SwitchingEnvironment
+from ._generations import generation_growth
+from ._growth_rate import growth_rate
+from ._results import BetHedging, CueValue, GrowthEstimate, SensingTradeoff, SwitchingOptimum
+from ._sensing import sensing_tradeoff
+from ._switching import optimal_switching
+
+__all__ = [
+    "BetHedging",
+    "CueValue",
+    "GrowthEstimate",
+    "MarkovEnvironment",
+    "PeriodicEnvironment",
+    "SensingTradeoff",
+    "SwitchingEnvironment",
+    "SwitchingOptimum",
+    "bet_hedging",
+    "continuous_growth",
+    "cue_value",
+    "generation_growth",
+    "growth_rate",
+    "optimal_switching",
+    "sensing_tradeoff",
+    "switching_generator",
+    "symmetric_cue",
+]
