@@ -183,3 +183,11 @@ def test_tau_continuation_needs_a_finite_tau():
         model().continuation(0.5, 2.0, parameter="death_scale")
     with pytest.raises(sl.InputError, match="`parameter` must be one of"):
         model().continuation(0.5, 2.0, parameter="rho")
+
+
+def test_every_branch_says_how_it_ended():
+    diagram = model(death=0.27).continuation(0.05, 20.0)
+    assert diagram.complete
+    for branch in diagram.branches:
+        assert branch.ended in ("left the parameter range", "reached zero density")
+        assert not branch.failed

@@ -60,6 +60,12 @@ class Branch:
     densities: np.ndarray
     values: np.ndarray
     stable: np.ndarray
+    ended: str = ""
+
+    @property
+    def failed(self) -> bool:
+        """True when continuation stopped because the corrector failed."""
+        return self.ended.startswith("FAILED")
 
     @property
     def betas(self) -> np.ndarray:
@@ -69,7 +75,8 @@ class Branch:
     def __repr__(self) -> str:
         return (
             f"Branch({self.densities.size} points, parameter {self.values.min():.4g}–"
-            f"{self.values.max():.4g}, density {self.densities.min():.4g}–{self.densities.max():.4g})"
+            f"{self.values.max():.4g}, density {self.densities.min():.4g}–{self.densities.max():.4g}; "
+            f"{self.ended or 'ended'})"
         )
 
 
@@ -86,6 +93,8 @@ class BifurcationDiagram:
     zero_values, zero_stable : ndarray
         Samples of the parameter and whether the zero state is stable there.
     critical_points : tuple of CriticalPoint, by increasing parameter value
+
+    ``complete`` is False when some branch's continuation failed (see ``Branch.ended``).
     """
 
     parameter: str
@@ -94,6 +103,10 @@ class BifurcationDiagram:
     zero_values: np.ndarray
     zero_stable: np.ndarray
     critical_points: tuple
+
+    @property
+    def complete(self) -> bool:
+        return not any(branch.failed for branch in self.branches)
 
     def __repr__(self) -> str:
         crit = ", ".join(f"{c.kind} {c.value:.6g}" for c in self.critical_points) or "none"
@@ -117,7 +130,7 @@ def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_po
 
     ``direction`` is ``(d_rho, d_beta)``: the first tangent has a positive dot product with it.
     Stops when the branch leaves ``beta_min <= beta <= beta_max`` or ``0 < rho <= 1``.
-    Returns arrays of densities, betas, and ``dH/drho`` at each point.
+    Returns arrays of densities, betas, ``dH/drho`` at each point, and how the branch ended.
     """
     width = beta_max - beta_min
     scale = np.array([1.0, width])
@@ -172,7 +185,21 @@ def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_po
         if not (0.0 < z[0] <= 1.0) or not (0.0 <= z[1] <= 1.0):
             break
     arr = np.array(points)
-    return arr[:, 0], beta_min + arr[:, 1] * width, np.array(slopes)
+    last_rho, last_beta = arr[-1, 0], beta_min + arr[-1, 1] * width
+    if not (0.0 <= arr[-1, 1] <= 1.0):
+        ended = "left the parameter range"
+    elif arr[-1, 0] <= 0.0:
+        ended = "reached zero density"
+    elif arr[-1, 0] > 1.0:
+        ended = "reached full density"
+    elif len(points) >= max_points:
+        ended = f"stopped at the point limit ({max_points}) at density {last_rho:.6g}, value {last_beta:.6g}"
+    else:
+        ended = (
+            f"FAILED: the corrector did not converge at density {last_rho:.6g}, value "
+            f"{last_beta:.6g} (step size below 1e-9)"
+        )
+    return arr[:, 0], beta_min + arr[:, 1] * width, np.array(slopes), ended
 
 
 def locate_fold(H, rho_a, rho_b, beta_guess, *, maximum: bool) -> tuple[float, float]:

@@ -355,7 +355,7 @@ class MeanField:
         for rho, value, direction in starts:
             if any(_near(branch, rho, value, lo, hi) for branch in branches):
                 continue
-            densities, values, slopes = trace_branch(
+            densities, values, slopes, ended = trace_branch(
                 H, rho, value, direction=direction, beta_min=lo, beta_max=hi, ds=ds
             )
             if self.tau is None:
@@ -366,7 +366,7 @@ class MeanField:
             densities, values, stable = _clip_to_range(H, densities, values, stable, lo, hi)
             if densities.size == 0:
                 continue
-            branches.append(Branch(densities, values, stable))
+            branches.append(Branch(densities, values, stable, ended))
             turns = np.sign(np.diff(values))
             for j in range(1, turns.size):
                 if turns[j - 1] != 0 and turns[j] != 0 and turns[j - 1] != turns[j]:
