@@ -188,8 +188,8 @@ def trace_branch(H, rho, beta, *, direction, beta_min, beta_max, ds=0.01, max_po
     last_rho, last_beta = arr[-1, 0], beta_min + arr[-1, 1] * width
     if not (0.0 <= arr[-1, 1] <= 1.0):
         ended = "left the parameter range"
-    elif arr[-1, 0] <= 0.0:
-        ended = "reached zero density"
+    elif arr[-1, 0] <= 1e-6:
+        ended = "reached zero density"  # the branch meets the zero state (transcritical)
     elif arr[-1, 0] > 1.0:
         ended = "reached full density"
     elif len(points) >= max_points:
