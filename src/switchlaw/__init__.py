@@ -1,155 +1,113 @@
 """switchlaw: phenotype switching laws derived from information theory.
 
+Cell-population modellers state what a cell senses and what each phenotype is worth; switchlaw
+derives the switching law (maximum entropy or minimum information under a sensing budget or a
+cost per bit, one Lagrange multiplier ``beta``) and what it does to the population.
+
 Research software, not a medical device.
+
+Public names are imported on first use (PEP 562), so ``import switchlaw`` and the command line
+start quickly; ``switchlaw.__all__`` lists them all.
 """
 
-from ._errors import InfeasibleError, InputError
-from .decision import (
-    Capacity,
-    CriticalBeta,
-    LinearConstraint,
-    Policy,
-    Sensitivity,
-    Tradeoff,
-    beta_from_cost,
-    capacity,
-    cost_from_beta,
-    first_critical_beta,
-    max_information_bits,
-    sensitivity,
-    solve,
-    solve_budget,
-    tradeoff,
-)
-from .laws import (
-    BINNING_RULES,
-    Environment,
-    FormulaFit,
-    GaussianReceptor,
-    Hill,
-    Linear,
-    PoissonReceptor,
-    SwitchingLaw,
-    Threshold,
-    continuous_signal,
-    derive_law,
-    empirical,
-    fit_formula,
-    occupancy,
-    product_environment,
-)
-from .growth import (
-    BetHedging,
-    CueValue,
-    GrowthEstimate,
-    MarkovEnvironment,
-    PeriodicEnvironment,
-    SensingTradeoff,
-    SwitchingEnvironment,
-    SwitchingOptimum,
-    bet_hedging,
-    continuous_growth,
-    cue_value,
-    generation_growth,
-    growth_rate,
-    optimal_switching,
-    sensing_tradeoff,
-    switching_generator,
-    symmetric_cue,
-)
-from .information import (
-    NATS_PER_BIT,
-    conditional_entropy,
-    entropy,
-    kl_divergence,
-    mutual_information,
-    to_bits,
-)
+from __future__ import annotations
 
-from .population import (
-    PARAMETERS,
-    REGIMES,
-    RegimeMap,
-    BifurcationDiagram,
-    Branch,
-    CriticalPoint,
-    Equilibrium,
-    MeanField,
-    Trajectory,
-    equilibria_of,
-)
-from .plotting import plot_bifurcation, plot_law, plot_regime_map, plot_tradeoff
+import importlib
 
 __version__ = "0.1.0"
 
-__all__ = [
-    "BetHedging",
-    "CueValue",
-    "GrowthEstimate",
-    "MarkovEnvironment",
-    "PeriodicEnvironment",
-    "SensingTradeoff",
-    "SwitchingEnvironment",
-    "SwitchingOptimum",
-    "bet_hedging",
-    "continuous_growth",
-    "cue_value",
-    "generation_growth",
-    "growth_rate",
-    "optimal_switching",
-    "sensing_tradeoff",
-    "switching_generator",
-    "symmetric_cue",
-    "BINNING_RULES",
-    "Environment",
-    "FormulaFit",
-    "GaussianReceptor",
-    "Hill",
-    "Linear",
-    "PoissonReceptor",
-    "SwitchingLaw",
-    "Threshold",
-    "continuous_signal",
-    "derive_law",
-    "empirical",
-    "fit_formula",
-    "occupancy",
-    "product_environment",
-    "plot_law",
-    "plot_tradeoff",
-    "plot_bifurcation",
-    "plot_regime_map",
-    "PARAMETERS",
-    "RegimeMap",
-    "REGIMES",
-    "BifurcationDiagram",
-    "Branch",
-    "CriticalPoint",
-    "Equilibrium",
-    "MeanField",
-    "Trajectory",
-    "equilibria_of",
-    "Capacity",
-    "CriticalBeta",
-    "InfeasibleError",
-    "InputError",
-    "LinearConstraint",
-    "NATS_PER_BIT",
-    "Policy",
-    "Sensitivity",
-    "Tradeoff",
-    "beta_from_cost",
-    "capacity",
-    "conditional_entropy",
-    "cost_from_beta",
-    "entropy",
-    "first_critical_beta",
-    "kl_divergence",
-    "max_information_bits",
-    "mutual_information",
-    "sensitivity",
-    "solve",
-    "solve_budget",
-    "to_bits",
-    "tradeoff",
-]
+#: Public name -> the module that defines it, in pipeline order.
+_EXPORTS = {
+    # _errors
+    "InfeasibleError": "._errors",
+    "InputError": "._errors",
+    # information
+    "conditional_entropy": ".information",
+    "entropy": ".information",
+    "kl_divergence": ".information",
+    "mutual_information": ".information",
+    "NATS_PER_BIT": ".information",
+    "to_bits": ".information",
+    # decision
+    "beta_from_cost": ".decision",
+    "Capacity": ".decision",
+    "capacity": ".decision",
+    "cost_from_beta": ".decision",
+    "CriticalBeta": ".decision",
+    "first_critical_beta": ".decision",
+    "LinearConstraint": ".decision",
+    "max_information_bits": ".decision",
+    "Policy": ".decision",
+    "Sensitivity": ".decision",
+    "sensitivity": ".decision",
+    "solve": ".decision",
+    "solve_budget": ".decision",
+    "Tradeoff": ".decision",
+    "tradeoff": ".decision",
+    # laws
+    "BINNING_RULES": ".laws",
+    "continuous_signal": ".laws",
+    "derive_law": ".laws",
+    "empirical": ".laws",
+    "Environment": ".laws",
+    "fit_formula": ".laws",
+    "FormulaFit": ".laws",
+    "GaussianReceptor": ".laws",
+    "Hill": ".laws",
+    "Linear": ".laws",
+    "occupancy": ".laws",
+    "PoissonReceptor": ".laws",
+    "product_environment": ".laws",
+    "SwitchingLaw": ".laws",
+    "Threshold": ".laws",
+    # population
+    "BifurcationDiagram": ".population",
+    "Branch": ".population",
+    "CriticalPoint": ".population",
+    "equilibria_of": ".population",
+    "Equilibrium": ".population",
+    "MeanField": ".population",
+    "PARAMETERS": ".population",
+    "RegimeMap": ".population",
+    "REGIMES": ".population",
+    "Trajectory": ".population",
+    # growth
+    "bet_hedging": ".growth",
+    "BetHedging": ".growth",
+    "continuous_growth": ".growth",
+    "cue_value": ".growth",
+    "CueValue": ".growth",
+    "generation_growth": ".growth",
+    "growth_rate": ".growth",
+    "GrowthEstimate": ".growth",
+    "MarkovEnvironment": ".growth",
+    "optimal_switching": ".growth",
+    "PeriodicEnvironment": ".growth",
+    "sensing_tradeoff": ".growth",
+    "SensingTradeoff": ".growth",
+    "switching_generator": ".growth",
+    "SwitchingEnvironment": ".growth",
+    "SwitchingOptimum": ".growth",
+    "symmetric_cue": ".growth",
+    # plotting
+    "plot_bifurcation": ".plotting",
+    "plot_law": ".plotting",
+    "plot_regime_map": ".plotting",
+    "plot_tradeoff": ".plotting",
+}
+
+__all__ = sorted(_EXPORTS)
+
+
+def __getattr__(name: str):
+    try:
+        module = _EXPORTS[name]
+    except KeyError:
+        raise AttributeError(f"module 'switchlaw' has no attribute {name!r}") from None
+    value = getattr(importlib.import_module(module, __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))
