@@ -46,6 +46,8 @@ class Environment:
     sensed_values : ndarray, optional
         Signal value each sensed state stands for (Poisson counts divided by the gain);
         defaults to ``values`` (see :attr:`decision_values`).
+    density : float, optional
+        The population density this environment describes, when known.
     """
 
     states: np.ndarray
@@ -57,6 +59,7 @@ class Environment:
     description: str = ""
     edges: np.ndarray | None = field(default=None)
     sensed_values: np.ndarray | None = field(default=None)
+    density: float | None = field(default=None)
 
     @property
     def decision_values(self) -> np.ndarray:
@@ -156,7 +159,7 @@ def occupancy(neighbours, density, *, lattice_sites=None) -> Environment:
     probs = np.clip(probs, 0.0, None)
     return Environment(
         states=counts, probs=probs / probs.sum(), values=counts.astype(float),
-        kind="occupancy", description=description,
+        kind="occupancy", description=description, density=rho,
     )
 
 

@@ -1,0 +1,140 @@
+"""The ``switchlaw`` command line: check, run, demo, schema.
+
+Heavy modules are imported inside the commands, so ``switchlaw --help`` starts at once.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from importlib import resources
+from pathlib import Path
+
+DEMOS = {
+    "colony": "A colony on a hexagonal lattice: divide or roam by occupied neighbours (invented).",
+    "dormancy": "Microbes choosing growth or dormancy under a noisy stress cue (invented).",
+}
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="switchlaw",
+        description="Derive phenotype switching laws from information theory and see what they do "
+        "to a cell population. Research software, not a medical device.",
+    )
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND")
+    check = commands.add_parser("check", help="validate a study file")
+    check.add_argument("study", help="path to a study file (TOML)")
+    for name, text in (("run", "run a whole study"), ("demo", "run a built-in study")):
+        sub = commands.add_parser(name, help=text)
+        if name == "run":
+            sub.add_argument("study", help="path to a study file (TOML)")
+        else:
+            sub.add_argument("name", nargs="?", default="colony", help=f"one of: {', '.join(DEMOS)}")
+        sub.add_argument("--out", required=True, help="output folder (must not exist unless --force)")
+        sub.add_argument("--force", action="store_true", help="replace an existing output folder")
+        sub.add_argument("--seed", type=int, default=None, help="override the study's seed")
+        sub.add_argument("--quiet", action="store_true", help="no progress messages")
+    demos = commands.add_parser("demos", help="list the built-in studies")
+    demos.set_defaults()
+    show = commands.add_parser("show-demo", help="print a built-in study file")
+    show.add_argument("name", help=f"one of: {', '.join(DEMOS)}")
+    schema = commands.add_parser("schema", help="print the JSON Schema of study files")
+    schema.set_defaults()
+    return parser
+
+
+def _fail(message: str) -> int:
+    print(f"switchlaw: error: {message}", file=sys.stderr)
+    return 2
+
+
+def _demo_text(name: str) -> str:
+    if name not in DEMOS:
+        raise KeyError(name)
+    return resources.files("switchlaw.cli").joinpath("studies", f"{name}.toml").read_text(encoding="utf-8")
+
+
+def _run(text: str, source: str, args) -> int:
+    from ._outputs import OutputExists, atomic_folder
+    from ._pipeline import run, write_outputs
+    from ._study import StudyError, load_text
+
+    try:
+        study = load_text(text, source)
+    except StudyError as error:
+        for line in error.lines:
+            print(line, file=sys.stderr)
+        return 2
+    if args.seed is not None:
+        if args.seed < 0:
+            return _fail(f"--seed must be >= 0 (got {args.seed})")
+        study.study.seed = args.seed
+    out = Path(args.out)
+    if out.exists() and not args.force:
+        return _fail(f"--out {out} already exists (use --force to replace it)")
+    from .._errors import InputError
+
+    try:
+        results = run(study, text, quiet=args.quiet)
+        with atomic_folder(out, force=args.force) as folder:
+            written = write_outputs(results, folder)
+    except OutputExists as error:
+        return _fail(str(error))
+    except InputError as error:
+        return _fail(f"{source}: {error}")
+    if not args.quiet:
+        print(f"wrote {out}/: " + ", ".join(written), file=sys.stderr)
+        print("Research software, not a medical device; defer to clinical practice.", file=sys.stderr)
+    return 0
+
+
+def main(argv=None) -> int:
+    args = _parser().parse_args(argv)
+    if args.command is None:
+        _parser().print_help()
+        return 2
+    if args.command == "check":
+        from ._study import StudyError, load
+
+        try:
+            study, _ = load(args.study)
+        except StudyError as error:
+            for line in error.lines:
+                print(line, file=sys.stderr)
+            return 2
+        print(f"{args.study}: ok ({study.study.title}; {len(study.study.phenotypes)} phenotypes)")
+        return 0
+    if args.command == "run":
+        try:
+            text = Path(args.study).read_text(encoding="utf-8")
+        except OSError as error:
+            return _fail(f"{args.study}: cannot be read ({error.strerror})")
+        return _run(text, args.study, args)
+    if args.command == "demo":
+        try:
+            text = _demo_text(args.name)
+        except KeyError:
+            return _fail(f"unknown demo {args.name!r} (valid: {', '.join(DEMOS)})")
+        return _run(text, f"demo:{args.name}", args)
+    if args.command == "demos":
+        for name, text in DEMOS.items():
+            print(f"{name:10s} {text}")
+        return 0
+    if args.command == "show-demo":
+        try:
+            print(_demo_text(args.name), end="")
+        except KeyError:
+            return _fail(f"unknown demo {args.name!r} (valid: {', '.join(DEMOS)})")
+        return 0
+    if args.command == "schema":
+        from ._study import json_schema
+
+        print(json.dumps(json_schema(), indent=2))
+        return 0
+    return _fail(f"unknown command {args.command!r}")  # pragma: no cover - argparse guards this
+
+
+if __name__ == "__main__":
+    sys.exit(main())

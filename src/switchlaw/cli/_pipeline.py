@@ -1,0 +1,302 @@
+"""Run a study: derive the law, analyse the population, scan, export, report."""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ._study import Study, environment_function, payoff_functions
+
+CAUTION = (
+    "Research software, not a medical device: these results are hypotheses about cell "
+    "populations under stated assumptions, not predictions or advice for any patient. "
+    "Defer to clinical practice."
+)
+
+
+class Progress:
+    """Stage messages with elapsed time on stderr; silent when quiet."""
+
+    def __init__(self, stages: int, quiet: bool):
+        self.stages, self.quiet, self.count = stages, quiet, 0
+        self.start = self.stage_start = time.perf_counter()
+
+    def stage(self, text: str) -> None:
+        self.count += 1
+        self.stage_start = time.perf_counter()
+        if not self.quiet:
+            elapsed = time.perf_counter() - self.start
+            print(f"[{self.count}/{self.stages}] {text} (t = {elapsed:.1f} s)", file=sys.stderr, flush=True)
+
+    def fraction(self, done: int, total: int, what: str) -> None:
+        if self.quiet or total <= 0:
+            return
+        rate = (time.perf_counter() - self.stage_start) / max(done, 1)
+        bar = "#" * int(30 * done / total)
+        left = rate * (total - done) if done else float("nan")
+        print(f"\r    {what} [{bar:<30}] {done}/{total}, about {left:.0f} s left ", end="",
+              file=sys.stderr, flush=True)
+        if done == total:
+            print(file=sys.stderr, flush=True)
+
+
+@dataclass
+class Results:
+    study: Study
+    text: str
+    law: object
+    curve: object
+    reference_density: float
+    model: object = None
+    diagram: object = None
+    scan: object = None
+    regime_map: object = None
+    timings: dict = field(default_factory=dict)
+
+
+def _route(study: Study) -> dict:
+    decision = study.decision
+    for key in ("beta", "cost_per_bit", "bits"):
+        value = getattr(decision, key)
+        if value is not None:
+            return {key: value}
+    raise AssertionError("validated studies have exactly one route")
+
+
+def run(study: Study, text: str, *, quiet: bool = False) -> Results:
+    """Compute everything the study asks for (no files written here)."""
+    import switchlaw as sl
+
+    stages = 2 + (2 if study.population else 0) + (1 if study.regime_map else 0)
+    progress = Progress(stages, quiet)
+    payoff = payoff_functions(study)
+    environment = environment_function(study)
+    names = study.study.phenotypes
+
+    progress.stage("deriving the switching law over densities")
+    law = sl.derive_law(
+        payoff, environment, densities=study.decision.densities.values(),
+        objective=study.decision.objective, phenotypes=names, **_route(study),
+    )
+
+    progress.stage("information–payoff curve at the reference density")
+    rho = study.decision.reference_density
+    env = environment(rho)
+    table = env.sensed_payoff(payoff(env))
+    if study.population is not None:
+        betas = study.population.betas.values()
+    else:
+        centre = float(np.nanmedian(law.betas[np.isfinite(law.betas)])) if np.isfinite(law.betas).any() else 1.0
+        betas = np.linspace(0.0, 4.0 * max(centre, 1e-3), 81)
+    curve = sl.tradeoff(table, env, betas, objective=study.decision.objective)
+    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho)
+    if study.population is None:
+        return results
+
+    pop = study.population
+    model = sl.MeanField(
+        payoff, environment,
+        division=[pop.division[n] for n in names],
+        death=[pop.death[n] for n in names],
+        crowding=None if pop.crowding is None else [pop.crowding.get(n, 0.0) for n in names],
+        tau=pop.tau, objective=study.decision.objective, phenotypes=names,
+    )
+    results.model = model
+    progress.stage("population regimes along beta")
+    grid = pop.betas.values()
+    rows = []
+    for i, beta in enumerate(grid):
+        found = model.equilibria(beta)
+        rows.append({
+            "beta": float(beta),
+            "regime": model.regime(beta),
+            "low_density_growth": model.low_density_growth(beta),
+            "equilibria": [{"density": e.density, "stable": e.stable} for e in found],
+            "allee_threshold": model.allee_threshold(beta),
+        })
+        progress.fraction(i + 1, grid.size, "betas")
+    results.scan = rows
+    progress.stage("continuation of equilibrium branches in beta")
+    results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
+    if study.regime_map is not None:
+        spec = study.regime_map
+        progress.stage(f"regime map over beta x {spec.parameter}")
+        results.regime_map = model.regime_map(
+            np.linspace(pop.betas.start, pop.betas.stop, spec.beta_points), spec.parameter,
+            spec.values.values(),
+        )
+    return results
+
+
+def _finite(value):
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else ("inf" if value > 0 else "-inf" if value < 0 else "nan")
+
+
+def summary(results: Results) -> dict:
+    """The machine-readable summary written as summary.json."""
+    import switchlaw as sl
+
+    law = results.law
+    out = {
+        "switchlaw_version": sl.__version__,
+        "caution": CAUTION,
+        "study": {"title": results.study.study.title, "notes": results.study.study.notes,
+                  "seed": results.study.study.seed},
+        "law": {
+            "objective": law.objective,
+            "route": law.route,
+            "setting": law.setting,
+            "phenotypes": list(law.phenotypes),
+            "densities": {"start": float(law.densities[0]), "stop": float(law.densities[-1]),
+                          "points": int(law.densities.size)},
+            "information_bits": [float(v) for v in law.information_bits],
+            "expected_payoff": [float(v) for v in law.expected_payoff],
+            "converged": bool(law.converged.all()),
+        },
+        "tradeoff": {
+            "reference_density": results.reference_density,
+            "critical_betas": [
+                {"beta": c.beta, "entering": list(c.entering), "leaving": list(c.leaving), "exact": c.exact}
+                for c in results.curve.critical_betas
+            ],
+        },
+    }
+    if results.scan is not None:
+        out["population"] = {
+            "regimes": [
+                {**row, "allee_threshold": _finite(row["allee_threshold"])} for row in results.scan
+            ],
+            "critical_betas": [
+                {"beta": c.beta, "kind": c.kind, "density": c.density}
+                for c in results.diagram.critical_points
+            ],
+            "continuation_complete": results.diagram.complete,
+        }
+    if results.regime_map is not None:
+        rm = results.regime_map
+        out["regime_map"] = {
+            "parameter": rm.parameter,
+            "betas": [float(b) for b in rm.betas],
+            "values": [float(v) for v in rm.values],
+            "regimes": [[str(r) for r in row] for row in rm.regimes],
+        }
+    return out
+
+
+def write_outputs(results: Results, folder: Path) -> list[str]:
+    """Write every output file into ``folder`` (a fresh temporary folder); returns their names."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    import switchlaw as sl
+
+    from ._report import render
+
+    figures = folder / "figures"
+    figures.mkdir()
+    made = {}
+
+    def save(fig, name):
+        for suffix in ("png", "svg"):
+            fig.savefig(figures / f"{name}.{suffix}", dpi=110)
+        plt.close(fig)
+        made[name] = figures / f"{name}.png"
+
+    fig, axes = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
+    sl.plot_law(results.law, axes=axes)
+    save(fig, "law")
+    fig, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
+    sl.plot_tradeoff(results.curve, ax=ax)
+    save(fig, "tradeoff")
+    if results.diagram is not None:
+        fig, ax = plt.subplots(figsize=(6.5, 4.2), constrained_layout=True)
+        sl.plot_bifurcation(results.diagram, ax=ax)
+        save(fig, "bifurcation")
+    if results.regime_map is not None:
+        fig, ax = plt.subplots(figsize=(6.5, 4.5), constrained_layout=True)
+        sl.plot_regime_map(results.regime_map, ax=ax)
+        save(fig, "regime_map")
+
+    data = summary(results)
+    (folder / "summary.json").write_text(json.dumps(data, indent=2, allow_nan=False) + "\n", encoding="utf-8")
+    (folder / "study.toml").write_text(results.text, encoding="utf-8")
+    written = ["summary.json", "study.toml"]
+    formats = results.study.exports.formats
+    if "csv" in formats:
+        _law_csv(results.law, folder / "law.csv")
+        written.append("law.csv")
+    if "netcdf" in formats:
+        dataset = results.law.to_xarray()
+        dataset.attrs["caution"] = CAUTION
+        dataset.to_netcdf(folder / "law.nc", engine="h5netcdf")
+        written.append("law.nc")
+        if results.scan is not None:
+            _scan_dataset(results).to_netcdf(folder / "scan.nc", engine="h5netcdf")
+            written.append("scan.nc")
+    if "sbml" in formats and results.model is not None:
+        written += _sbml(results, folder)
+    (folder / "report.html").write_text(render(results, data, made), encoding="utf-8")
+    written.append("report.html")
+    return written + [f"figures/{p.name}" for p in sorted(figures.iterdir())]
+
+
+def _law_csv(law, path: Path) -> None:
+    lines = ["density,state,state_value,phenotype,probability,state_probability"]
+    values = law.state_values if law.state_values.ndim == 1 else law.state_values[:, 0]
+    for i, rho in enumerate(law.densities):
+        for y, state in enumerate(law.states):
+            for x, name in enumerate(law.phenotypes):
+                lines.append(
+                    f"{rho!r},{state},{float(values[y])!r},{name},{float(law.table[i, y, x])!r},"
+                    f"{float(law.state_probs[i, y])!r}"
+                )
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+def _scan_dataset(results: Results):
+    import xarray as xr
+
+    import switchlaw as sl
+
+    rows = results.scan
+    betas = np.array([r["beta"] for r in rows])
+    codes = np.array([sl.REGIMES.index(r["regime"]) for r in rows], dtype=np.int8)
+    stable_max = np.array([
+        max([e["density"] for e in r["equilibria"] if e["stable"]], default=0.0) for r in rows
+    ])
+    threshold = np.array([np.nan if r["allee_threshold"] is None else r["allee_threshold"] for r in rows])
+    return xr.Dataset(
+        {
+            "regime": ("beta", codes, {"long_name": "population regime", "flag_values": np.arange(4, dtype=np.int8),
+                                       "flag_meanings": " ".join(sl.REGIMES)}),
+            "low_density_growth": ("beta", np.array([r["low_density_growth"] for r in rows]),
+                                   {"units": "1/time", "long_name": "growth rate of a rare population"}),
+            "largest_stable_density": ("beta", stable_max, {"units": "1", "long_name": "largest stable equilibrium density"}),
+            "allee_threshold": ("beta", threshold, {"units": "1", "long_name": "Allee threshold density (NaN if none)"}),
+        },
+        coords={"beta": ("beta", betas, {"units": "nats per payoff unit", "long_name": "sensitivity beta"})},
+        attrs={"caution": CAUTION, "study": results.study.study.title},
+    )
+
+
+def _sbml(results: Results, folder: Path) -> list[str]:
+    import switchlaw as sl
+
+    exporter = getattr(sl, "export", None)
+    if exporter is None:
+        return []
+    pop = results.study.population
+    beta = float(np.median(pop.betas.values()))
+    exporter(results.model, folder / "model.sbml", format="sbml", law=results.law, beta=beta)
+    return ["model.sbml"]

@@ -1,0 +1,136 @@
+"""One self-contained HTML report (figures embedded) a modeller can send to a colleague."""
+
+from __future__ import annotations
+
+import base64
+import html
+from pathlib import Path
+
+from ._pipeline import CAUTION
+
+_STYLE = """
+body { font-family: system-ui, sans-serif; max-width: 980px; margin: 2em auto; padding: 0 1em;
+       color: #1d2733; line-height: 1.45; }
+h1 { font-size: 1.6em; margin-bottom: 0.2em; }
+h2 { border-bottom: 1px solid #d5dbe1; padding-bottom: 0.2em; margin-top: 1.8em; }
+.caution { background: #fff4e0; border-left: 4px solid #d98c1a; padding: 0.6em 1em; }
+img { max-width: 100%; border: 1px solid #e3e7eb; }
+table { border-collapse: collapse; margin: 0.6em 0; font-size: 0.92em; }
+th, td { border: 1px solid #d5dbe1; padding: 0.25em 0.6em; text-align: right; }
+th { background: #f1f4f7; }
+pre { background: #f6f8fa; padding: 0.8em; overflow-x: auto; font-size: 0.88em; }
+details { margin: 0.5em 0 1em; }
+.muted { color: #5d6b78; font-size: 0.92em; }
+"""
+
+
+def _image(path: Path, alt: str) -> str:
+    data = base64.b64encode(path.read_bytes()).decode("ascii")
+    return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
+
+
+def _table(header, rows) -> str:
+    head = "".join(f"<th>{html.escape(str(h))}</th>" for h in header)
+    body = "".join(
+        "<tr>" + "".join(f"<td>{html.escape(str(c))}</td>" for c in row) + "</tr>" for row in rows
+    )
+    return f"<table><tr>{head}</tr>{body}</table>"
+
+
+def _fmt(value, digits: int = 6) -> str:
+    if value is None:
+        return "–"
+    if isinstance(value, str):
+        return value
+    return f"{value:.{digits}g}"
+
+
+def render(results, data: dict, figures: dict) -> str:
+    """The report as one HTML string."""
+    law = results.law
+    title = html.escape(results.study.study.title)
+    parts = [
+        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>",
+        f"<title>{title} — switchlaw report</title><style>{_STYLE}</style></head><body>",
+        f"<h1>{title}</h1>",
+        f"<p class='muted'>switchlaw {html.escape(data['switchlaw_version'])} · seed "
+        f"{results.study.study.seed}</p>",
+        f"<p class='caution'><strong>Research use only.</strong> {html.escape(CAUTION)}</p>",
+    ]
+    if results.study.study.notes:
+        parts.append(f"<p>{html.escape(results.study.study.notes)}</p>")
+    parts.append("<h2>The study as given</h2>")
+    parts.append(f"<pre>{html.escape(results.text)}</pre>")
+
+    route = {"beta": "β", "cost_per_bit": "sensing cost per bit", "bits": "information budget (bits)"}[law.route]
+    parts.append("<h2>The switching law</h2>")
+    parts.append(
+        f"<p>Objective <code>{law.objective}</code>, derived from {route} = {law.setting:g} over "
+        f"{law.densities.size} densities in [{law.densities[0]:g}, {law.densities[-1]:g}]. Left: the "
+        "probability of a phenotype for each sensed state and density. Right: mean-field phenotype "
+        "fractions, averaged over the distribution of sensed states at each density.</p>"
+    )
+    parts.append(_image(figures["law"], "switching law heat map and fractions"))
+    step = max(1, law.densities.size // 20)
+    fractions = law.fractions(law.densities[::step])
+    rows = [
+        [_fmt(rho, 4)] + [_fmt(f, 4) for f in frac] + [_fmt(i, 4), _fmt(e, 5)]
+        for rho, frac, i, e in zip(law.densities[::step], fractions, law.information_bits[::step],
+                                   law.expected_payoff[::step])
+    ]
+    parts.append("<details><summary>Numbers behind the figure</summary>")
+    parts.append(_table(["density"] + [f"fraction {p}" for p in law.phenotypes] + ["I (bits)", "E[u]"], rows))
+    parts.append("</details>")
+
+    curve = results.curve
+    parts.append("<h2>Information–payoff curve</h2>")
+    parts.append(
+        f"<p>At density {results.reference_density:g}: the payoff a cell can earn for each amount of "
+        "information it uses about its surroundings, along β.</p>"
+    )
+    parts.append(_image(figures["tradeoff"], "information–payoff curve"))
+    parts.append("<details><summary>Numbers behind the figure</summary>")
+    parts.append(_table(
+        ["β", "I (bits)", "E[u]"],
+        [[_fmt(b, 5), _fmt(i, 5), _fmt(e, 6)] for b, i, e in
+         zip(curve.betas, curve.information_bits, curve.expected_payoff)],
+    ))
+    parts.append("</details>")
+    if curve.critical_betas:
+        parts.append("<p>Phenotypes enter or leave the policy at: " + ", ".join(
+            f"β = {c.beta:.6g}" for c in curve.critical_betas) + ".</p>")
+
+    if results.diagram is not None:
+        parts.append("<h2>Population: equilibria and bifurcations in β</h2>")
+        parts.append(
+            "<p>Stable equilibria solid, unstable dashed. A strong Allee effect (bistability) means a "
+            "colony below the threshold density dies out in the mean-field model.</p>"
+        )
+        parts.append(_image(figures["bifurcation"], "bifurcation diagram in beta"))
+        crit = results.diagram.critical_points
+        parts.append("<h3>Critical β values</h3>")
+        parts.append(_table(["β", "kind", "density"], [[_fmt(c.beta, 10), c.kind, _fmt(c.density, 6)] for c in crit])
+                     if crit else "<p>None in the scanned range.</p>")
+        if not results.diagram.complete:
+            parts.append("<p class='caution'>Continuation did not complete on every branch: "
+                         + html.escape("; ".join(b.ended for b in results.diagram.branches if b.failed)) + "</p>")
+        parts.append("<details><summary>Regime at each β</summary>")
+        parts.append(_table(
+            ["β", "regime", "growth when rare", "Allee threshold", "stable densities"],
+            [[_fmt(r["beta"], 5), r["regime"], _fmt(r["low_density_growth"], 4), _fmt(r["allee_threshold"], 4),
+              ", ".join(_fmt(e["density"], 4) for e in r["equilibria"] if e["stable"])] for r in results.scan],
+        ))
+        parts.append("</details>")
+    if results.regime_map is not None:
+        rm = results.regime_map
+        parts.append(f"<h2>Regime map: β × {html.escape(rm.parameter)}</h2>")
+        parts.append(_image(figures["regime_map"], "regime map"))
+        parts.append("<details><summary>Numbers behind the figure</summary>")
+        parts.append(_table([rm.parameter, "critical β (kind)"], [
+            [_fmt(v, 4), "; ".join(f"{c.beta:.5g} ({c.kind})" for c in row) or "–"]
+            for v, row in zip(rm.values, rm.critical)
+        ]))
+        parts.append("</details>")
+    parts.append(f"<p class='caution'><strong>Research use only.</strong> {html.escape(CAUTION)}</p>")
+    parts.append("</body></html>")
+    return "\n".join(parts)

@@ -1,0 +1,298 @@
+"""Study files: one TOML file describes a whole study (validated with pydantic).
+
+Every problem is reported as one line ``FILE: key.path: what is wrong (got VALUE)``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import tomllib
+from pathlib import Path
+from typing import Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError
+
+from . import _expressions
+
+PAYOFF_VARIABLES = ("y", "density")
+PARAMETER_VARIABLES = ("density",)
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", strict=True)
+
+
+class Span(_Strict):
+    """An evenly spaced grid: ``points`` values from ``start`` to ``stop``."""
+
+    start: float
+    stop: float
+    points: int = Field(ge=2, le=100_000)
+
+    def values(self) -> np.ndarray:
+        return np.linspace(self.start, self.stop, self.points)
+
+
+class Meta(_Strict):
+    title: str
+    notes: str = ""
+    seed: int = Field(default=0, ge=0)
+    phenotypes: list[str] = Field(min_length=1)
+
+
+class Receptor(_Strict):
+    kind: Literal["gaussian", "poisson"]
+    sd: float | None = Field(default=None, gt=0)
+    gain: float | None = Field(default=None, gt=0)
+
+
+class Senses(_Strict):
+    kind: Literal["neighbours", "signal"]
+    neighbours: int | None = Field(default=None, ge=1)
+    lattice_sites: int | None = Field(default=None, ge=2)
+    distribution: str | None = None
+    parameters: dict[str, str | float] = Field(default_factory=dict)
+    edges: list[float] | None = None
+    receptor: Receptor | None = None
+
+
+class Decision(_Strict):
+    objective: Literal["min-information", "max-entropy"] = "min-information"
+    beta: float | None = Field(default=None, ge=0)
+    cost_per_bit: float | None = Field(default=None, gt=0)
+    bits: float | None = Field(default=None, ge=0)
+    densities: Span
+    reference_density: float = Field(default=0.5, ge=0, le=1)
+
+
+class Population(_Strict):
+    division: dict[str, float]
+    death: dict[str, float]
+    crowding: dict[str, float] | None = None
+    tau: float | None = Field(default=None, gt=0)
+    betas: Span
+
+
+class RegimeMapSpec(_Strict):
+    parameter: Literal["death_scale", "division_scale"]
+    values: Span
+    beta_points: int = Field(default=40, ge=2, le=2000)
+
+
+class Exports(_Strict):
+    formats: list[str] = Field(default_factory=lambda: ["csv"])
+
+
+class Study(_Strict):
+    study: Meta
+    senses: Senses
+    payoff: dict[str, str | float]
+    decision: Decision
+    population: Population | None = None
+    regime_map: RegimeMapSpec | None = None
+    exports: Exports = Field(default_factory=Exports)
+
+
+class StudyError(ValueError):
+    """A study file with problems; ``lines`` holds one line per problem."""
+
+    def __init__(self, lines: list[str]):
+        super().__init__("\n".join(lines))
+        self.lines = lines
+
+
+def _show(value) -> str:
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def _semantic(study: Study) -> list[tuple[str, str, object]]:
+    """Checks that span several keys; each as (key path, message, value)."""
+    problems = []
+    names = study.study.phenotypes
+    if len(set(names)) != len(names):
+        problems.append(("study.phenotypes", "phenotype names must be distinct", names))
+    routes = [k for k in ("beta", "cost_per_bit", "bits") if getattr(study.decision, k) is not None]
+    if len(routes) != 1:
+        problems.append(("decision", "give exactly one of beta, cost_per_bit, bits", routes or None))
+    if study.decision.bits is not None and study.decision.objective != "min-information":
+        problems.append(("decision.bits", "a budget in bits needs objective = \"min-information\"", study.decision.bits))
+    span = study.decision.densities
+    if not (0 <= span.start < span.stop <= 1):
+        problems.append(("decision.densities", "densities must satisfy 0 <= start < stop <= 1", [span.start, span.stop]))
+    for key in names:
+        if key not in study.payoff:
+            problems.append((f"payoff.{key}", "missing payoff for a phenotype", None))
+    for key, text in study.payoff.items():
+        if key not in names:
+            problems.append((f"payoff.{key}", f"unknown phenotype (phenotypes are {names})", text))
+            continue
+        if isinstance(text, str):
+            try:
+                _expressions.parse(text, PAYOFF_VARIABLES)
+            except _expressions.ExpressionError as error:
+                problems.append((f"payoff.{key}", str(error), text))
+    senses = study.senses
+    if senses.kind == "neighbours":
+        if senses.neighbours is None:
+            problems.append(("senses.neighbours", "required when kind = \"neighbours\"", None))
+        for extra in ("distribution", "edges", "receptor"):
+            if getattr(senses, extra) not in (None, {}):
+                problems.append((f"senses.{extra}", "only for kind = \"signal\"", getattr(senses, extra)))
+        if senses.lattice_sites is not None and senses.neighbours is not None and senses.lattice_sites <= senses.neighbours:
+            problems.append(("senses.lattice_sites", "must exceed senses.neighbours", senses.lattice_sites))
+    else:
+        from scipy import stats
+
+        dist = getattr(stats, senses.distribution or "", None)
+        if senses.distribution is None:
+            problems.append(("senses.distribution", "required when kind = \"signal\"", None))
+        elif not isinstance(dist, stats.rv_continuous):
+            problems.append(("senses.distribution", "not a continuous scipy.stats distribution", senses.distribution))
+        if senses.edges is None or len(senses.edges) < 2:
+            problems.append(("senses.edges", "at least two increasing bin edges are required", senses.edges))
+        elif not all(b > a for a, b in zip(senses.edges, senses.edges[1:])) or any(math.isnan(e) for e in senses.edges):
+            problems.append(("senses.edges", "bin edges must be strictly increasing", senses.edges))
+        for key, text in senses.parameters.items():
+            if isinstance(text, str):
+                try:
+                    _expressions.parse(text, PARAMETER_VARIABLES)
+                except _expressions.ExpressionError as error:
+                    problems.append((f"senses.parameters.{key}", str(error), text))
+        if senses.receptor is not None:
+            need = "sd" if senses.receptor.kind == "gaussian" else "gain"
+            if getattr(senses.receptor, need) is None:
+                problems.append((f"senses.receptor.{need}", f"required for a {senses.receptor.kind} receptor", None))
+    if study.population is not None:
+        pop = study.population
+        for table in ("division", "death", "crowding"):
+            rates = getattr(pop, table)
+            if rates is None:
+                continue
+            for key, value in rates.items():
+                if key not in names:
+                    problems.append((f"population.{table}.{key}", f"unknown phenotype (phenotypes are {names})", value))
+                elif not (math.isfinite(value) and value >= 0):
+                    problems.append((f"population.{table}.{key}", "rates must be finite and >= 0", value))
+            if table != "crowding":
+                for key in names:
+                    if key not in rates:
+                        problems.append((f"population.{table}.{key}", "missing rate for a phenotype", None))
+        if not (0 <= pop.betas.start < pop.betas.stop):
+            problems.append(("population.betas", "betas must satisfy 0 <= start < stop", [pop.betas.start, pop.betas.stop]))
+    if study.regime_map is not None:
+        if study.population is None:
+            problems.append(("regime_map", "needs a [population] section", None))
+        span = study.regime_map.values
+        if not (0 < span.start < span.stop):
+            problems.append(("regime_map.values", "scales must satisfy 0 < start < stop", [span.start, span.stop]))
+    from ._outputs import EXPORT_FORMATS
+
+    for i, name in enumerate(study.exports.formats):
+        if name not in EXPORT_FORMATS:
+            problems.append((f"exports.formats[{i}]", f"unknown format (valid: {', '.join(EXPORT_FORMATS)})", name))
+    return problems
+
+
+def load_text(text: str, source: str) -> Study:
+    """Parse and validate a study given as TOML text; raise :class:`StudyError`."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise StudyError([f"{source}: (file): not valid TOML ({error})"]) from None
+    try:
+        study = Study.model_validate(data)
+    except ValidationError as error:
+        lines = []
+        for item in error.errors():
+            path = ".".join(str(p) if not isinstance(p, int) else f"[{p}]" for p in item["loc"]).replace(".[", "[")
+            lines.append(f"{source}: {path or '(top level)'}: {item['msg']} (got {_show(item.get('input'))})")
+        raise StudyError(lines) from None
+    problems = _semantic(study)
+    if problems:
+        raise StudyError([f"{source}: {path}: {message} (got {_show(value)})" for path, message, value in problems])
+    return study
+
+
+def load(path) -> tuple[Study, str]:
+    """Read and validate a study file; returns the study and its text."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as error:
+        raise StudyError([f"{path}: (file): cannot be read ({error.strerror})"]) from None
+    return load_text(text, str(path)), text
+
+
+def json_schema() -> dict:
+    """The JSON Schema of study files (generated from the pydantic models)."""
+    schema = Study.model_json_schema()
+    schema["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    schema["title"] = "switchlaw study file"
+    return schema
+
+
+# ------------------------------------------------------------------ building the objects
+def payoff_functions(study: Study) -> dict:
+    """Phenotype name -> function of an Environment giving that phenotype's payoff column."""
+    columns = {}
+    for name in study.study.phenotypes:
+        spec = study.payoff[name]
+        if isinstance(spec, str):
+            tree = _expressions.parse(spec, PAYOFF_VARIABLES)
+            columns[name] = tree
+        else:
+            columns[name] = float(spec)
+
+    def table(env):
+        values = env.values if env.values.ndim == 1 else env.values[:, 0]
+        density = env.density if env.density is not None else 0.0
+        out = []
+        for name in study.study.phenotypes:
+            spec = columns[name]
+            column = (
+                _expressions.evaluate(spec, {"y": values, "density": density})
+                if not isinstance(spec, float) else spec
+            )
+            out.append(np.broadcast_to(np.asarray(column, dtype=float), values.shape))
+        return np.column_stack(out)
+
+    return table
+
+
+def environment_function(study: Study):
+    """``density -> Environment`` for the study's [senses] section."""
+    import switchlaw as sl
+
+    senses = study.senses
+    if senses.kind == "neighbours":
+        def build(rho):
+            return sl.occupancy(senses.neighbours, rho, lattice_sites=senses.lattice_sites)
+
+        return build
+    from scipy import stats
+
+    family = getattr(stats, senses.distribution)
+    parsed = {
+        key: (_expressions.parse(value, PARAMETER_VARIABLES) if isinstance(value, str) else float(value))
+        for key, value in senses.parameters.items()
+    }
+    receptor = None
+    if senses.receptor is not None:
+        receptor = (
+            sl.GaussianReceptor(senses.receptor.sd) if senses.receptor.kind == "gaussian"
+            else sl.PoissonReceptor(senses.receptor.gain)
+        )
+    edges = np.asarray(senses.edges, dtype=float)
+
+    def build(rho):
+        kwargs = {
+            key: float(_expressions.evaluate(value, {"density": rho})) if not isinstance(value, float) else value
+            for key, value in parsed.items()
+        }
+        env = sl.continuous_signal(family(**kwargs), edges, receptor=receptor)
+        return dataclasses.replace(env, density=float(rho))
+
+    return build
