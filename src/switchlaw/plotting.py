@@ -73,9 +73,12 @@ def plot_tradeoff(curve, *, ax=None):
     ax.plot(curve.information_bits[order], curve.expected_payoff[order], marker=".", lw=1.5)
     ax.set_xlabel("information I(X;Y) (bits)")
     ax.set_ylabel("expected payoff E[u]")
-    for critical in curve.critical_betas:
-        ax.annotate(f"β = {critical.beta:.4g}", xy=(0.02, 0.95 - 0.06 * curve.critical_betas.index(critical)),
-                    xycoords="axes fraction", fontsize=8)
+    for i, critical in enumerate(curve.critical_betas):
+        change = ", ".join(
+            [f"+{x}" for x in critical.entering] + [f"−{x}" for x in critical.leaving]
+        )
+        ax.annotate(f"critical β = {critical.beta:.4g} (phenotypes {change})",
+                    xy=(0.02, 0.95 - 0.06 * i), xycoords="axes fraction", fontsize=8)
     ax.set_title("information–payoff trade-off")
     return ax
 
