@@ -145,3 +145,28 @@ def test_help_imports_nothing_heavy():
     assert out.stdout.strip() == "[]"
     helped = subprocess.run([sys.executable, "-m", "switchlaw.cli._main", "--help"], capture_output=True, text=True)
     assert helped.returncode == 0 and "not a medical device" in helped.stdout
+
+
+@pytest.mark.slow
+def test_report_renders_in_a_real_browser(tmp_path):
+    # Needs Debian's chromium (apt-get install chromium); run with `python -m pytest -m slow`.
+    import shutil
+
+    browser = shutil.which("chromium")
+    assert browser, "install chromium to run the browser check"
+    out = tmp_path / "run"
+    assert main(["demo", "colony", "--out", str(out), "--quiet"]) == 0
+    shot = tmp_path / "report.png"
+    subprocess.run(
+        [browser, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+         "--disable-background-networking", "--disable-component-update", "--disable-sync",
+         f"--user-data-dir={tmp_path / 'profile'}", "--window-size=1100,3000",
+         f"--screenshot={shot}", (out / "report.html").as_uri()],
+        capture_output=True, timeout=120, check=True,
+    )
+    from matplotlib.image import imread
+
+    pixels = imread(shot)
+    assert pixels.shape[0] == 3000 and pixels.shape[1] == 1100
+    # A rendered page with text and figures is far from blank: many distinct grey levels.
+    assert len({round(float(v), 2) for v in pixels[:, :, :3].mean(axis=2).ravel()[::97]}) > 20
