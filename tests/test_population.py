@@ -191,3 +191,17 @@ def test_every_branch_says_how_it_ended():
     for branch in diagram.branches:
         assert branch.ended in ("left the parameter range", "reached zero density")
         assert not branch.failed
+
+
+def test_a_fold_at_a_kink_of_the_law_is_still_found():
+    # Min-information laws switch phenotypes at densities where the support of the marginal
+    # changes, so g(rho) has kinks; a fold there is non-smooth and continuation stops at it.
+    # It must still be reported, located by counting equilibria on both sides.
+    mf = model(objective="min-information", death=0.4)
+    (fold,) = mf.critical_betas(0.1, 20.0)
+    assert fold.kind == "fold"
+    # Near a non-smooth fold the two merging roots are within ~1e-6 of each other for betas
+    # within ~1e-5 of it, so the counts are compared 1e-3 away.
+    assert len(mf.equilibria(fold.beta - 1e-3)) == 3
+    assert len(mf.equilibria(fold.beta + 1e-3)) == 1
+    assert fold.density == pytest.approx(0.6, abs=1e-3)  # where every cell divides: 1 - d/b

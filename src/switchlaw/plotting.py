@@ -101,10 +101,16 @@ def plot_bifurcation(diagram, *, ax=None):
         _, ax = plt.subplots(figsize=(6, 4), constrained_layout=True)
     lo, hi = diagram.value_range
     label = "β" if diagram.parameter == "beta" else diagram.parameter
+    # The zero state changes stability only at transcritical points: draw it in pieces
+    # between them, each styled by the stability sampled inside it.
+    samples = np.asarray(diagram.zero_values)
     stable_zero = np.asarray(diagram.zero_stable)
-    betas = np.asarray(diagram.zero_values)
-    for mask, style in ((stable_zero, "-"), (~stable_zero, "--")):
-        ax.plot(np.where(mask, betas, np.nan), np.zeros_like(betas), style, color="k", lw=1.5)
+    cuts = [lo] + sorted(c.value for c in diagram.critical_points if c.kind == "transcritical") + [hi]
+    for a, b in zip(cuts[:-1], cuts[1:]):
+        inside = (samples > a) & (samples < b)
+        stable = bool(stable_zero[inside][0]) if inside.any() else bool(
+            stable_zero[np.argmin(np.abs(samples - 0.5 * (a + b)))])
+        ax.plot([a, b], [0.0, 0.0], "-" if stable else "--", color="k", lw=1.5)
     for branch in diagram.branches:
         for mask, style in ((branch.stable, "-"), (~branch.stable, "--")):
             segment = np.where(mask, branch.densities, np.nan)

@@ -88,7 +88,7 @@ def run(study: Study, text: str, *, quiet: bool = False) -> Results:
     progress.stage("information–payoff curve at the reference density")
     rho = study.decision.reference_density
     env = environment(rho)
-    table = env.sensed_payoff(payoff(env))
+    table = payoff(env)  # over true states; solvers apply the receptor themselves
     if study.population is not None:
         betas = study.population.betas.values()
     else:

@@ -1,4 +1,4 @@
-"""Stage 2 of the pipeline: decision solvers that turn payoffs and environment statistics into
+"""A stage of the pipeline (see docs/architecture.md): decision solvers that turn payoffs and environment statistics into
 phenotype policies (minimum information, maximum entropy, budgeted), trade-off curves and
 sensing-channel capacities."""
 

@@ -207,9 +207,10 @@ def newton_marginal(
         direction = _direction(problem, ev, r[index], index, tol)
         gradient = -ev.c[index]
         decrease = -float(gradient @ direction)
-        if not decrease > 0:
+        # Below float resolution the sign of the predicted decrease is noise: take the step.
+        unresolved = abs(decrease) < _FLOOR * (1.0 + abs(ev.objective))
+        if not (decrease > 0 or unresolved) or not np.any(direction):
             break
-        unresolved = decrease < _FLOOR * (1.0 + abs(ev.objective))
         t = 1.0
         accepted = None
         while t >= 1e-12:

@@ -14,8 +14,16 @@ from ._results import Policy
 
 
 def check_problem(payoff, env) -> tuple[np.ndarray, np.ndarray]:
-    """Validated ``(payoff[y, x], env[y])`` as float64 arrays."""
+    """Validated ``(payoff[s, x], env[s])`` over the states the cell decides on.
+
+    An environment seen through a noisy receptor (an object with a ``channel``) takes the
+    payoff over its *true* states and turns it into the payoff expected given each sensed
+    state, ``E[u(Y, x) | S = s]``.
+    """
     probs = as_distribution(env, "env")
+    if getattr(env, "channel", None) is not None:
+        true_states = env.channel.shape[0]
+        return env.sensed_payoff(as_payoff(payoff, true_states)), probs
     return as_payoff(payoff, probs.size), probs
 
 
@@ -83,7 +91,9 @@ def solve(
     payoff : array_like, shape (states, phenotypes)
         ``payoff[y, x] = u(y, x)``: benefit of phenotype ``x`` in state ``y`` (payoff units).
     env : array_like, shape (states,), or an environment with ``.probs``
-        Probabilities ``p(y)`` of the states (sum to one within 1e-9).
+        Probabilities ``p(y)`` of the states (sum to one within 1e-9). For an environment
+        with a noisy receptor, ``payoff`` is over its true states and the cell decides on the
+        sensed state with payoff ``E[u(Y, x) | S = s]``.
     beta : float
         Sensitivity: Lagrange multiplier of the payoff term, >= 0 (nats per payoff unit).
     objective : {"min-information", "max-entropy"}

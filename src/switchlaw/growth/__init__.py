@@ -1,4 +1,4 @@
-"""Stage 3 of the pipeline: what a switching law is worth in long-run growth when the
+"""A stage of the pipeline (see docs/architecture.md): what a switching law is worth in long-run growth when the
 environment fluctuates — bet hedging, the value of a cue, the price of sensing, and growth
 with phenotype switching in discrete generations and in continuous time."""
 

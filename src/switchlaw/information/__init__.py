@@ -1,4 +1,4 @@
-"""Stage 1 of the pipeline: information measures of discrete distributions.
+"""A stage of the pipeline (see docs/architecture.md): information measures of discrete distributions.
 
 Everything here computes in nats; pass ``unit="bits"`` to get bits at the edge.
 """

@@ -1,4 +1,4 @@
-"""Stage 3 of the pipeline: switching laws from environmental statistics and sensing costs.
+"""A stage of the pipeline (see docs/architecture.md): switching laws from environmental statistics and sensing costs.
 
 Environments (what the cell senses, as a function of density) and payoffs feed the decision
 solvers at every density; the result is a :class:`SwitchingLaw` with rates for simulators and

@@ -44,6 +44,8 @@ class SwitchingLaw:
         Sensitivity at each density (nats per payoff unit); constant unless derived from a
         budget, ``inf`` where a budget does not bind.
     information_bits, expected_payoff : ndarray, shape (k,)
+        Mutual information between the phenotype and the state the cell decides on (the
+        *sensed* state when there is a receptor, ``I(X;S)``), and the expected payoff.
     converged : ndarray of bool, shape (k,)
     objective : str
     route : str

@@ -1,4 +1,4 @@
-"""Stage 4 of the pipeline: what a switching law does to a population (mean-field dynamics,
+"""A stage of the pipeline (see docs/architecture.md): what a switching law does to a population (mean-field dynamics,
 equilibria, Allee regimes, continuation in beta)."""
 
 from ._continuation import BifurcationDiagram, Branch, CriticalPoint

@@ -37,6 +37,33 @@ PARAMETERS = ("beta", "cost_per_bit", "death_scale", "division_scale", "tau")
 _CACHE = 4096
 
 
+def _fold_by_counting(family, value: float, rho: float, lo: float, hi: float):
+    """A change in the number of positive equilibria near ``value``, located by bisection."""
+
+    def count(v):
+        return len(family.equilibria(v)) - 1
+
+    width = 1e-3 * (hi - lo)
+    for _ in range(8):
+        a, b = max(lo, value - width), min(hi, value + width)
+        n_a, n_b = count(a), count(b)
+        if n_a != n_b:
+            break
+        width *= 3
+    else:
+        return None
+    while b - a > 1e-11 * max(1.0, abs(a)):
+        middle = 0.5 * (a + b)
+        if count(middle) == n_a:
+            a = middle
+        else:
+            b = middle
+    more = a if n_a > n_b else b
+    roots = sorted((e.density for e in family.equilibria(more)[1:]), key=lambda r: abs(r - rho))
+    density = float(np.mean(roots[:2])) if len(roots) >= 2 else float(rho)
+    return family.point(0.5 * (a + b), "fold", density)
+
+
 def _clip_to_range(H, densities, betas, stable, lo, hi):
     """Replace a final step that left the range by the branch's crossing of its edge."""
     if betas.size >= 2 and not (lo <= betas[-1] <= hi):
@@ -374,6 +401,14 @@ class MeanField:
                         H, densities[j - 1], densities[j + 1], values[j], maximum=turns[j - 1] > 0
                     )
                     critical.append(family.point(value_f, "fold", rho_f))
+        # A branch whose corrector failed usually ended at a kink of the law (a phenotype
+        # entering or leaving), where two branches can meet in a non-smooth fold. Locate such
+        # points by counting equilibria on either side and bisecting.
+        for branch in branches:
+            if branch.failed:
+                found = _fold_by_counting(family, branch.values[-1], branch.densities[-1], lo, hi)
+                if found is not None and all(abs(found.value - c.value) > 1e-8 for c in critical):
+                    critical.append(found)
         critical.sort(key=lambda c: c.value)
         return BifurcationDiagram(
             parameter=parameter, value_range=(lo, hi), branches=tuple(branches),
