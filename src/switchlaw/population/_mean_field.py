@@ -283,7 +283,8 @@ class MeanField:
     def _equilibrium(self, rho: float, beta: float) -> Equilibrium:
         if self.tau is None:
             g = self.growth(rho, beta)
-            eigen = g + rho * derivative(lambda r: self.growth(r, beta), rho, step=1e-4)
+            # A small step keeps the difference on one side of nearby kinks of the law.
+            eigen = g + rho * derivative(lambda r: self.growth(r, beta), rho, step=1e-6)
             eigenvalues = np.array([eigen])
             compartments = rho * self.fractions(rho, beta)
         else:
@@ -407,7 +408,10 @@ class MeanField:
         for branch in branches:
             if branch.failed:
                 found = _fold_by_counting(family, branch.values[-1], branch.densities[-1], lo, hi)
-                if found is not None and all(abs(found.value - c.value) > 1e-8 for c in critical):
+                # Two failed branches meeting at one kink give the same point (to ~1e-6).
+                if found is not None and all(
+                    abs(found.value - c.value) > 1e-5 * max(1.0, abs(c.value)) for c in critical
+                ):
                     critical.append(found)
         critical.sort(key=lambda c: c.value)
         return BifurcationDiagram(

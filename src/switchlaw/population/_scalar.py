@@ -62,12 +62,18 @@ def roots_on_unit_interval(function, *, points: int = 201, xtol: float = 1e-13) 
     grid = np.linspace(0.0, 1.0, points)
     values = np.array([function(x) for x in grid])
     roots = []
+    nudge = 1e-9  # an exact zero on the grid may hide a second root right next to it
     for i in range(1, points):
         a, b = grid[i - 1], grid[i]
         fa, fb = values[i - 1], values[i]
         if fb == 0.0:
             roots.append(float(b))
-        elif fa * fb < 0:
+            b = b - nudge
+            fb = function(b)
+        if fa == 0.0:
+            a = a + nudge
+            fa = function(a)
+        if fa * fb < 0:
             roots.append(float(brentq(function, a, b, xtol=xtol, rtol=4 * np.finfo(float).eps)))
     # Cells where |g| dips without a sign change may hide a pair of close roots (or a double
     # root at a fold): look at the signed extremum there.
