@@ -89,6 +89,11 @@ _EXPORTS = {
     "SwitchingEnvironment": ".growth",
     "SwitchingOptimum": ".growth",
     "symmetric_cue": ".growth",
+    # exporters
+    "EXPORT_FORMATS": ".exporters",
+    "Exported": ".exporters",
+    "export": ".exporters",
+    "read_table": ".exporters",
     # plotting
     "plot_bifurcation": ".plotting",
     "plot_law": ".plotting",

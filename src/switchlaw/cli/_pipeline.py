@@ -233,35 +233,23 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
     (folder / "study.toml").write_text(results.text, encoding="utf-8")
     written = ["summary.json", "study.toml"]
     formats = results.study.exports.formats
+    study_record = {"title": results.study.study.title, "toml": results.text}
     if "csv" in formats:
-        _law_csv(results.law, folder / "law.csv")
-        written.append("law.csv")
+        done = sl.export(results.law, folder / "law.csv", study=study_record)
+        written += [Path(p).name for p in done.paths]
     if "netcdf" in formats:
-        dataset = results.law.to_xarray()
-        dataset.attrs["caution"] = CAUTION
-        dataset.to_netcdf(folder / "law.nc", engine="h5netcdf")
+        sl.export(results.law, folder / "law.nc", study=study_record)
         written.append("law.nc")
         if results.scan is not None:
             _scan_dataset(results).to_netcdf(folder / "scan.nc", engine="h5netcdf")
             written.append("scan.nc")
     if "sbml" in formats and results.model is not None:
-        written += _sbml(results, folder)
+        sl.export(results.model, folder / "model.sbml", format="sbml", law=results.law,
+                  initial=results.study.population.initial_density, study=study_record)
+        written.append("model.sbml")
     (folder / "report.html").write_text(render(results, data, made), encoding="utf-8")
     written.append("report.html")
     return written + [f"figures/{p.name}" for p in sorted(figures.iterdir())]
-
-
-def _law_csv(law, path: Path) -> None:
-    lines = ["density,state,state_value,phenotype,probability,state_probability"]
-    values = law.state_values if law.state_values.ndim == 1 else law.state_values[:, 0]
-    for i, rho in enumerate(law.densities):
-        for y, state in enumerate(law.states):
-            for x, name in enumerate(law.phenotypes):
-                lines.append(
-                    f"{rho!r},{state},{float(values[y])!r},{name},{float(law.table[i, y, x])!r},"
-                    f"{float(law.state_probs[i, y])!r}"
-                )
-    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
 
 
 def _scan_dataset(results: Results):
@@ -288,15 +276,3 @@ def _scan_dataset(results: Results):
         coords={"beta": ("beta", betas, {"units": "nats per payoff unit", "long_name": "sensitivity beta"})},
         attrs={"caution": CAUTION, "study": results.study.study.title},
     )
-
-
-def _sbml(results: Results, folder: Path) -> list[str]:
-    import switchlaw as sl
-
-    exporter = getattr(sl, "export", None)
-    if exporter is None:
-        return []
-    pop = results.study.population
-    beta = float(np.median(pop.betas.values()))
-    exporter(results.model, folder / "model.sbml", format="sbml", law=results.law, beta=beta)
-    return ["model.sbml"]

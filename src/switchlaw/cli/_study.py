@@ -73,6 +73,7 @@ class Population(_Strict):
     crowding: dict[str, float] | None = None
     tau: float | None = Field(default=None, gt=0)
     betas: Span
+    initial_density: float = Field(default=0.5, ge=0, le=1)
 
 
 class RegimeMapSpec(_Strict):

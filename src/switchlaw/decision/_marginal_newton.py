@@ -103,15 +103,17 @@ def simplex_qp(hessian: np.ndarray, linear: np.ndarray, *, max_iter: int | None 
     return w
 
 
-def _enter(problem: Reduced, r: np.ndarray, ev: Evaluation, x: int) -> np.ndarray:
+def _enter(problem: Reduced, r: np.ndarray, ev: Evaluation, x: int) -> np.ndarray | None:
     """Move mass toward phenotype ``x`` along ``e_x - r`` with an exact line search."""
-    b = np.minimum(ev.ratio[:, x], _RATIO_CAP) - 1.0
+    b = ev.ratio[:, x] - 1.0  # capped at 1e300 by evaluate(); b / (1 + t b) stays finite
     p = problem.p
 
     def slope(t: float) -> float:
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             return float(-(p @ (b / (1.0 + t * b))))
 
+    if not slope(0.0) < 0:
+        return None  # no resolvable descent along e_x - r: leave it to the quadratic model
     t_hi = 1.0 - 1e-12
     end = slope(t_hi)
     if np.isfinite(end) and end <= 0:
@@ -200,10 +202,12 @@ def newton_marginal(
             return MarginalResult(r, gap, iteration - 1, True, "certified gap below tolerance")
         unused = index[r[index] == 0]
         if unused.size and ev.c[unused].max() > _FAR:
-            r = _enter(problem, r, ev, int(unused[np.argmax(ev.c[unused])]))
-            ev = evaluate(problem, r)
-            gap = _gap(ev.c, allowed)
-            continue
+            entered = _enter(problem, r, ev, int(unused[np.argmax(ev.c[unused])]))
+            if entered is not None:
+                r = entered
+                ev = evaluate(problem, r)
+                gap = _gap(ev.c, allowed)
+                continue
         direction = _direction(problem, ev, r[index], index, tol)
         gradient = -ev.c[index]
         decrease = -float(gradient @ direction)

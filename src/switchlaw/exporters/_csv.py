@@ -1,0 +1,132 @@
+"""Format ``csv``: the law in long format, one row per density x state x phenotype, with a
+JSON sidecar (``<path>.json``) holding units, provenance and the per-density quantities."""
+
+from __future__ import annotations
+
+import csv
+import io
+from pathlib import Path
+
+import numpy as np
+
+from .._errors import InputError
+from ._provenance import law_metadata, sha256_of_law
+from ._registry import Format, register
+from ._tables import (
+    LAW_KIND, dumps, from_json_values, header, law_arrays, law_dataset, number, state_text,
+)
+
+#: Per-density and per-state quantities kept in the sidecar (the CSV holds the rest).
+SIDECAR_ARRAYS = ("densities", "states", "state_values", "beta", "information_bits",
+                  "expected_payoff", "converged")
+
+
+def sidecar_path(path: Path) -> Path:
+    """Where the JSON sidecar of a CSV table lives: the CSV path with ``.json`` appended."""
+    return path.with_name(path.name + ".json")
+
+
+def value_columns(state_values: np.ndarray) -> list:
+    if state_values.ndim == 1:
+        return ["state_value"]
+    return [f"state_value_{j}" for j in range(state_values.shape[1])]
+
+
+def write(law, path: Path, *, study) -> tuple:
+    digest = sha256_of_law(law)
+    arrays = law_arrays(law)
+    values = np.asarray(law.state_values, dtype=float)
+    columns = ["density", "state", *value_columns(values), "phenotype", "probability",
+               "state_probability"]
+    text = io.StringIO()
+    writer = csv.writer(text, lineterminator="\n")
+    writer.writerow(columns)
+    per_state = values.reshape(values.shape[0], -1)
+    for k, rho in enumerate(law.densities):
+        for y, state in enumerate(law.states):
+            fixed = [number(rho), state_text(state), *(number(v) for v in per_state[y])]
+            for x, name in enumerate(law.phenotypes):
+                writer.writerow([*fixed, name, number(law.table[k, y, x]), number(law.state_probs[k, y])])
+    sidecar = header(LAW_KIND, "csv", law_metadata(law, study, digest), law.phenotypes, arrays,
+                     SIDECAR_ARRAYS)
+    sidecar["csv"] = {"file": path.name, "columns": columns,
+                      "rows": "one per density x state x phenotype"}
+    return {path: text.getvalue().encode(), sidecar_path(path): dumps(sidecar)}, digest
+
+
+def rows(path: Path, columns: list) -> list:
+    """The data rows of a CSV table, after checking its header."""
+    try:
+        with open(path, newline="", encoding="utf-8") as stream:
+            reader = csv.reader(stream)
+            found = next(reader, None)
+            if found != columns:
+                raise InputError(f"`path` {str(path)!r} must have the columns {columns} (got {found})")
+            return list(reader)
+    except FileNotFoundError:
+        raise InputError(f"`path` {str(path)!r} does not exist") from None
+
+
+def index(values, path: Path, name: str) -> dict:
+    lookup = {}
+    for i, value in enumerate(values):
+        lookup[value] = i
+    if len(lookup) != len(values):
+        raise InputError(f"`path` {str(path)!r}: the sidecar's {name} must be distinct")
+    return lookup
+
+
+def parse_state(text: str, states: np.ndarray):
+    return int(text) if np.issubdtype(states.dtype, np.integer) else float(text)
+
+
+def fill(path: Path, cells, shape: tuple, what: str) -> np.ndarray:
+    """An array of ``shape`` from ``(index, value)`` pairs, each cell given exactly once."""
+    array = np.full(shape, np.nan)
+    seen = np.zeros(shape, dtype=bool)
+    for where, value in cells:
+        if seen[where] and array[where] != value:
+            raise InputError(f"`path` {str(path)!r}: {what} at {where} is given twice, differently")
+        array[where] = value
+        seen[where] = True
+    if not seen.all():
+        where = tuple(int(i) for i in np.argwhere(~seen)[0])
+        raise InputError(f"`path` {str(path)!r}: {what} at {where} is missing")
+    return array
+
+
+def read(path: Path, sidecar: dict):
+    """The law dataset from a CSV table and its sidecar."""
+    arrays = {name: from_json_values(name, sidecar[name]) for name in SIDECAR_ARRAYS}
+    phenotypes = sidecar["phenotypes"]
+    columns = sidecar["csv"]["columns"]
+    densities = index(arrays["densities"].tolist(), path, "densities")
+    states = index(arrays["states"].tolist(), path, "states")
+    names = index(phenotypes, path, "phenotypes")
+    k, m, n = len(densities), len(states), len(names)
+    width = len(columns)
+    table, state_probs = [], []
+    try:
+        for row in rows(path, columns):
+            if len(row) != width:
+                raise InputError(f"`path` {str(path)!r}: every row must have {width} fields (got {row})")
+            i = densities[float(row[0])]
+            y = states[parse_state(row[1], arrays["states"])]
+            x = names[row[width - 3]]
+            table.append(((i, y, x), float(row[width - 2])))
+            state_probs.append(((i, y), float(row[width - 1])))
+    except (KeyError, ValueError) as error:
+        raise InputError(f"`path` {str(path)!r}: a row names a value not in the sidecar ({error})") from None
+    arrays["probability"] = fill(path, table, (k, m, n), "probability")
+    arrays["state_probability"] = fill(path, state_probs, (k, m), "state_probability")
+    return law_dataset(arrays, phenotypes, sidecar["metadata"])
+
+
+FORMAT = register(Format(
+    name="csv",
+    suffixes=(".csv",),
+    accepts=("SwitchingLaw",),
+    options={"study": None},
+    write=write,
+    description="long-format CSV (density x state x phenotype) with a JSON sidecar",
+))
