@@ -35,7 +35,8 @@ class Progress:
             print(f"[{self.count}/{self.stages}] {text} (t = {elapsed:.1f} s)", file=sys.stderr, flush=True)
 
     def fraction(self, done: int, total: int, what: str) -> None:
-        if self.quiet or total <= 0:
+        """A progress bar with the time left, redrawn in place (terminals only, not logs)."""
+        if self.quiet or total <= 0 or not sys.stderr.isatty():
             return
         rate = (time.perf_counter() - self.stage_start) / max(done, 1)
         bar = "#" * int(30 * done / total)
