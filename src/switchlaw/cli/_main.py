@@ -36,6 +36,9 @@ def _parser() -> argparse.ArgumentParser:
         sub.add_argument("--force", action="store_true", help="replace an existing output folder")
         sub.add_argument("--seed", type=int, default=None, help="override the study's seed")
         sub.add_argument("--quiet", action="store_true", help="no progress messages")
+        sub.add_argument("--jobs", type=int, default=None, help="local processes for the beta scan")
+        sub.add_argument("--scheduler", default=None,
+                         help="Dask scheduler address (tcp://host:port) or scheduler file for the beta scan")
     demos = commands.add_parser("demos", help="list the built-in studies")
     demos.set_defaults()
     show = commands.add_parser("show-demo", help="print a built-in study file")
@@ -77,7 +80,9 @@ def _run(text: str, source: str, args) -> int:
     from .._errors import InputError
 
     try:
-        results = run(study, text, quiet=args.quiet)
+        if args.jobs is not None and args.jobs < 1:
+            return _fail(f"--jobs must be >= 1 (got {args.jobs})")
+        results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler)
         with atomic_folder(out, force=args.force) as folder:
             written = write_outputs(results, folder)
     except OutputExists as error:

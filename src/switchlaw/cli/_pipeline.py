@@ -70,8 +70,13 @@ def _route(study: Study) -> dict:
     raise AssertionError("validated studies have exactly one route")
 
 
-def run(study: Study, text: str, *, quiet: bool = False) -> Results:
-    """Compute everything the study asks for (no files written here)."""
+def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None,
+        scheduler: str | None = None) -> Results:
+    """Compute everything the study asks for (no files written here).
+
+    ``jobs`` (local processes) or ``scheduler`` (a Dask scheduler address or file) spread the
+    scan over beta; results are identical whatever runs them.
+    """
     import switchlaw as sl
 
     stages = 2 + (2 if study.population else 0) + (1 if study.regime_map else 0)
@@ -109,20 +114,20 @@ def run(study: Study, text: str, *, quiet: bool = False) -> Results:
         tau=pop.tau, objective=study.decision.objective, phenotypes=names,
     )
     results.model = model
-    progress.stage("population regimes along beta")
+    progress.stage("population regimes along beta (scan)")
     grid = pop.betas.values()
-    rows = []
-    for i, beta in enumerate(grid):
-        found = model.equilibria(beta)
-        rows.append({
-            "beta": float(beta),
-            "regime": model.regime(beta),
-            "low_density_growth": model.low_density_growth(beta),
-            "equilibria": [{"density": e.density, "stable": e.stable} for e in found],
-            "allee_threshold": model.allee_threshold(beta),
-        })
-        progress.fraction(i + 1, grid.size, "betas")
-    results.scan = rows
+    executor = "serial"
+    if scheduler is not None:
+        executor = scheduler
+    elif jobs is not None and jobs > 1:
+        executor = "processes"
+    dataset = sl.scan(
+        sl.RegimeSummary(model), {"beta": grid}, executor=executor,
+        jobs=jobs if executor == "processes" else None, seed=study.study.seed,
+        progress=not quiet and sys.stderr.isatty(), study=study.study.title,
+    )
+    dataset.attrs["caution"] = CAUTION
+    results.scan = dataset
     progress.stage("continuation of equilibrium branches in beta")
     results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
     if study.regime_map is not None:
@@ -140,6 +145,25 @@ def _finite(value):
         return None
     value = float(value)
     return value if math.isfinite(value) else ("inf" if value > 0 else "-inf" if value < 0 else "nan")
+
+
+def _scan_rows(dataset) -> list[dict]:
+    """Per-beta rows of the regime scan, JSON-ready (NaN becomes null)."""
+    rows = []
+    for i, beta in enumerate(dataset["beta"].values):
+        def number(name):
+            value = float(dataset[name].values[i])
+            return value if math.isfinite(value) else None
+
+        rows.append({
+            "beta": float(beta),
+            "regime": str(dataset["regime"].values[i]),
+            "low_density_growth": number("low_density_growth"),
+            "largest_stable_density": number("stable_density"),
+            "allee_threshold": number("allee_threshold"),
+            "positive_equilibria": int(dataset["positive_equilibria"].values[i]),
+        })
+    return rows
 
 
 def summary(results: Results) -> dict:
@@ -173,9 +197,7 @@ def summary(results: Results) -> dict:
     }
     if results.scan is not None:
         out["population"] = {
-            "regimes": [
-                {**row, "allee_threshold": _finite(row["allee_threshold"])} for row in results.scan
-            ],
+            "regimes": _scan_rows(results.scan),
             "critical_betas": [
                 {"beta": c.beta, "kind": c.kind, "density": c.density}
                 for c in results.diagram.critical_points
@@ -242,7 +264,7 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
         sl.export(results.law, folder / "law.nc", study=study_record)
         written.append("law.nc")
         if results.scan is not None:
-            _scan_dataset(results).to_netcdf(folder / "scan.nc", engine="h5netcdf")
+            sl.save_scan(results.scan, folder / "scan.nc")
             written.append("scan.nc")
     if "sbml" in formats and results.model is not None:
         sl.export(results.model, folder / "model.sbml", format="sbml", law=results.law,
@@ -251,29 +273,3 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
     (folder / "report.html").write_text(render(results, data, made), encoding="utf-8")
     written.append("report.html")
     return written + [f"figures/{p.name}" for p in sorted(figures.iterdir())]
-
-
-def _scan_dataset(results: Results):
-    import xarray as xr
-
-    import switchlaw as sl
-
-    rows = results.scan
-    betas = np.array([r["beta"] for r in rows])
-    codes = np.array([sl.REGIMES.index(r["regime"]) for r in rows], dtype=np.int8)
-    stable_max = np.array([
-        max([e["density"] for e in r["equilibria"] if e["stable"]], default=0.0) for r in rows
-    ])
-    threshold = np.array([np.nan if r["allee_threshold"] is None else r["allee_threshold"] for r in rows])
-    return xr.Dataset(
-        {
-            "regime": ("beta", codes, {"long_name": "population regime", "flag_values": np.arange(4, dtype=np.int8),
-                                       "flag_meanings": " ".join(sl.REGIMES)}),
-            "low_density_growth": ("beta", np.array([r["low_density_growth"] for r in rows]),
-                                   {"units": "1/time", "long_name": "growth rate of a rare population"}),
-            "largest_stable_density": ("beta", stable_max, {"units": "1", "long_name": "largest stable equilibrium density"}),
-            "allee_threshold": ("beta", threshold, {"units": "1", "long_name": "Allee threshold density (NaN if none)"}),
-        },
-        coords={"beta": ("beta", betas, {"units": "nats per payoff unit", "long_name": "sensitivity beta"})},
-        attrs={"caution": CAUTION, "study": results.study.study.title},
-    )

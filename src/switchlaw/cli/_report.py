@@ -116,9 +116,10 @@ def render(results, data: dict, figures: dict) -> str:
                          + html.escape("; ".join(b.ended for b in results.diagram.branches if b.failed)) + "</p>")
         parts.append("<details><summary>Regime at each β</summary>")
         parts.append(_table(
-            ["β", "regime", "growth when rare", "Allee threshold", "stable densities"],
+            ["β", "regime", "growth when rare", "Allee threshold", "largest stable density", "positive equilibria"],
             [[_fmt(r["beta"], 5), r["regime"], _fmt(r["low_density_growth"], 4), _fmt(r["allee_threshold"], 4),
-              ", ".join(_fmt(e["density"], 4) for e in r["equilibria"] if e["stable"])] for r in results.scan],
+              _fmt(r["largest_stable_density"], 4), r["positive_equilibria"]]
+             for r in data["population"]["regimes"]],
         ))
         parts.append("</details>")
     if results.regime_map is not None:
