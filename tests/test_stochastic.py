@@ -627,3 +627,55 @@ def test_results_print_short_summaries(law):
     curve = BirthDeathSwitching(division=[1.0], death=[0.5]).extinction_curve([1, 2], upper=10, replicates=50, seed=1)
     assert "ExtinctionCurve(2 sizes 1..2" in repr(curve)
     assert "\n" not in repr(curve) and "\n" not in repr(estimate)
+
+
+@pytest.mark.parametrize("width", [None, 8])
+def test_sweep_candidate_turns_are_independent_bernoulli_trials(width):
+    # The sweep engine draws the gaps between the turns whose uniform falls below `top` instead
+    # of one uniform per site (geometric gaps, Devroye 1986, Non-Uniform Random Variate
+    # Generation, ch. X.2). Reference: every site is a candidate independently with probability
+    # `top` (Bernoulli / binomial closed forms), and a candidate's u is uniform on [0, top)
+    # (Kolmogorov-Smirnov test from scipy.stats). width=8 forces every replicate to continue its
+    # run of gaps past the first batch.
+    from switchlaw.stochastic._streams import Streams
+    from switchlaw.stochastic._sweep import _SweepDraws
+
+    replicates, sites, classes, top = 2000, 100, 5, 0.3
+
+    def draw(seed):
+        draws = _SweepDraws(Streams(np.random.SeedSequence(seed), replicates), replicates, classes, sites, top,
+                            width=width)
+        rank, rr, ss, u = draws.sweep(np.ones(replicates, dtype=bool))
+        return rank.copy(), rr, ss, u
+
+    rank, rr, ss, u = draw(21)
+    again = draw(21)
+    assert all(np.array_equal(a, b) for a, b in zip((rank, rr, ss, u), again))  # same seed, same numbers
+    assert np.array_equal(np.sort(rank, axis=1), np.tile(np.arange(classes), (replicates, 1)))
+    assert ss.min() >= 0 and ss.max() < sites
+    assert np.unique(rr * sites + ss).size == rr.size  # each turn at most once
+    trials = replicates * sites
+    assert z_ok(rr.size / trials, top, binomial_se(top, trials))
+    hits = np.bincount(ss, minlength=sites)
+    for edge in (slice(0, 10), slice(sites - 10, sites)):  # both ends of a run of gaps
+        n = replicates * 10
+        assert z_ok(hits[edge].sum() / n, top, binomial_se(top, n))
+    per_replicate = np.bincount(rr, minlength=replicates)
+    assert z_ok(per_replicate.var(ddof=1), trials / replicates * top * (1 - top),
+                # standard error of a sample variance, normal approximation: sigma^2 sqrt(2 / (n - 1))
+                sites * top * (1 - top) * math.sqrt(2 / (replicates - 1)))
+    assert u.min() >= 0 and u.max() < top
+    assert stats.kstest(u / top, "uniform").pvalue > 1e-4
+    # A replicate's numbers come from its own stream only: with every other replicate idle
+    # (frozen or extinct), the others draw exactly what they drew before, and the idle draw none.
+    draws = _SweepDraws(Streams(np.random.SeedSequence(21), replicates), replicates, classes, sites, top, width=width)
+    active = np.arange(replicates) % 2 == 0
+    rank_half, rr_half, ss_half, u_half = draws.sweep(active)
+    assert np.array_equal(rank_half[active], rank[active])
+    assert np.all(active[rr_half])
+    mine = active[rr]
+    order = np.lexsort((ss_half, rr_half))
+    reference = np.lexsort((ss[mine], rr[mine]))
+    assert np.array_equal(rr_half[order], rr[mine][reference])
+    assert np.array_equal(ss_half[order], ss[mine][reference])
+    assert np.array_equal(u_half[order], u[mine][reference])

@@ -85,11 +85,30 @@ class Rules:
         w = np.clip((density - grid[i]) / (grid[i + 1] - grid[i]), 0.0, 1.0)[:, None, None]
         return np.cumsum((1.0 - w) * table[i] + w * table[i + 1], axis=2)
 
+    def decision_columns(self, density: np.ndarray) -> np.ndarray:
+        """:meth:`cumulative_at` laid out for look-ups: shape (phenotypes, densities * states), entry
+        ``[x, i * states + y]`` the cumulative law of ``x`` at density ``i`` and state ``y``."""
+        cumulative = self.cumulative_at(density)
+        return np.ascontiguousarray(np.moveaxis(cumulative, 2, 0).reshape(cumulative.shape[2], -1))
+
+    def decide_columns(self, counts: np.ndarray, columns: np.ndarray, rows: np.ndarray, u: np.ndarray) -> np.ndarray:
+        """:meth:`decide_rows` with the table from :meth:`decision_columns` (the same numbers)."""
+        at = rows * self.law.states.size + self.states(counts)
+        threshold = u * columns[-1].take(at)
+        new = np.zeros(u.shape, dtype=np.int64)
+        for column in columns[:-1]:
+            new += column.take(at) <= threshold
+        return new
+
     def decide_rows(self, counts: np.ndarray, cumulative: np.ndarray, rows: np.ndarray, u: np.ndarray) -> np.ndarray:
         """Like :meth:`decide`, with the cumulative law precomputed: ``cumulative[rows[i]]`` is
         the table for cell ``i`` (see :meth:`cumulative_at`)."""
         cum = cumulative[rows, self.states(counts)]
-        return (cum[:, :-1] <= (u * cum[:, -1])[:, None]).sum(axis=1)
+        threshold = u * cum[:, -1]
+        new = np.zeros(u.shape, dtype=np.int64)
+        for column in cum[:, :-1].T:  # count the cumulative values <= u * total, column by column
+            new += column <= threshold
+        return new
 
 
 def event_index(x: np.ndarray, u: np.ndarray, probs: np.ndarray, lower: np.ndarray):
@@ -98,9 +117,11 @@ def event_index(x: np.ndarray, u: np.ndarray, probs: np.ndarray, lower: np.ndarr
     The second value is a fresh uniform number given the event (used to pick a neighbour or a
     phenotype), so one draw serves both.
     """
-    edges = (np.arange(probs.shape[0])[:, None] + lower[:, 1:]).ravel()
-    event = np.minimum(np.searchsorted(edges, x + u, side="right") - 4 * x, 4)
+    event = np.zeros(x.shape, dtype=np.int64)
+    for edge in lower[:, 1:].T:  # the number of interval edges at or below u
+        event += edge.take(x) <= u
     at = 5 * x + event
-    width = probs.reshape(-1)[at]
-    inside = np.divide(u - lower.reshape(-1)[at], width, out=np.zeros_like(u), where=width > 0)
-    return event, np.clip(inside, 0.0, np.nextafter(1.0, 0.0))
+    width = probs.reshape(-1).take(at)
+    inside = np.divide(u - lower.reshape(-1).take(at), width, out=np.zeros_like(u), where=width > 0)
+    np.maximum(inside, 0.0, out=inside)
+    return event, np.minimum(inside, np.nextafter(1.0, 0.0), out=inside)

@@ -10,7 +10,9 @@ In its turn a cell of phenotype ``x`` acts with probability ``1 - exp(-R_x dt)``
 total rate) and then does event ``e`` with probability ``r_xe / R_x``. Whether a cell acts,
 and which event it picks, depend only on its own phenotype, which nothing but its own turn can
 change; so both are drawn for all cells at the start of the sweep (one uniform number per
-site), and only the acting cells are visited, class by class. Where a daughter or a mover goes,
+site, of which only those below the largest chance to act are generated, see
+:class:`_SweepDraws`), and only the acting cells are visited, class by class, each class's
+acting cells sorted into contiguous slices by event. Where a daughter or a mover goes,
 and what a deciding cell senses, are read at the moment of its turn. Cells born or moved during
 a sweep wait for the next one (the sites they occupy were empty when the sweep began, so they
 hold no turn in it). As ``dt -> 0`` the sweeps converge to the continuous-time process
@@ -18,6 +20,8 @@ with an error of order ``R_x dt``; the ``exact`` engine has no such error.
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
@@ -37,6 +41,87 @@ def _labels(lattice: Lattice) -> np.ndarray:
     for k, members in enumerate(lattice.classes):
         label[members] = k
     return label
+
+
+class _SweepDraws:
+    """One sweep's random numbers, replicate by replicate from its own stream.
+
+    Each replicate needs ``C`` uniforms that order the classes and, for every site, a uniform
+    ``u`` for its turn, of which only those below ``top`` (the largest chance to act) matter.
+    Instead of ``S`` uniforms, draw the gaps between those candidate sites: in a row of
+    independent trials of success probability ``top`` the gaps are geometric,
+    ``G = 1 + floor(log(1 - V) / log(1 - top))`` for ``V`` uniform, and a candidate's ``u`` is
+    ``top`` times a fresh uniform (Devroye 1986, ch. II.2 and X.2). The same joint law as
+    ``S`` uniforms, with about ``2 S top`` numbers per sweep.
+
+    References
+    ----------
+    L. Devroye, *Non-Uniform Random Variate Generation*, Springer (1986).
+    """
+
+    def __init__(self, streams: Streams, replicates: int, classes: int, sites: int, top: float, *, width=None):
+        mean = sites * top
+        # Gaps drawn at once: the mean number of candidates plus 5 standard deviations; a
+        # replicate that needs more continues its run of gaps (:meth:`_extend`).
+        if width is None:
+            width = min(sites + 1, int(math.ceil(mean + 5.0 * math.sqrt(mean * (1.0 - top)) + 8)))
+        self.width = int(width)
+        self.streams, self.classes, self.sites, self.top = streams, classes, sites, top
+        self.scale = 1.0 / math.log1p(-top) if top < 1.0 else 0.0
+        self.store = np.empty((replicates, classes + 2 * self.width))
+        self.rank = np.zeros((replicates, classes), dtype=np.int64)
+        self.steps = np.arange(self.width)
+
+    def sweep(self, active: np.ndarray):
+        """Class ranks ``(replicates, C)`` and the candidates ``(replicate, site, u)`` of the
+        replicates in blocks with an ``active`` row; other rows draw nothing."""
+        streams, C, w, S = self.streams, self.classes, self.width, self.sites
+        block = streams.block
+        blocks = np.flatnonzero(active.reshape(-1, block).any(axis=1))
+        for b in blocks.tolist():
+            streams.generators[b].random(out=self.store[b * block:(b + 1) * block])
+        rows = None if blocks.size == streams.blocks else streams.rows(blocks)
+        part = self.store if rows is None else self.store[rows]
+        # The turn of each class: the inverse of the permutation that sorts its uniforms.
+        rank = np.argsort(np.argsort(part[:, :C], axis=1), axis=1)
+        if rows is None:
+            self.rank = rank
+        else:
+            self.rank[rows] = rank
+        gap = np.log1p(-part[:, C:C + w])
+        gap *= self.scale
+        np.minimum(gap, S, out=gap)  # any gap past the lattice is as good as another
+        position = gap.astype(np.int64)  # floor of a number >= 0
+        np.cumsum(position, axis=1, out=position)
+        position += self.steps  # the gaps are floor(...) + 1; sites count from 0
+        at = np.flatnonzero(position < S)
+        ss = position.reshape(-1).take(at)
+        ri = at // w
+        # ``u`` of candidate (ri, ci) sits at column C + w + ci of row ri of ``part``.
+        u = part.reshape(-1).take(at + ri * (C + w) + (C + w))
+        u *= self.top
+        rr = ri if rows is None else rows[ri]
+        short = np.flatnonzero(position[:, -1] < S - 1)
+        if short.size:
+            owners = (short if rows is None else rows[short]).tolist()
+            extra = [self._extend(r, float(position[k, -1])) for r, k in zip(owners, short.tolist())]
+            rr = np.concatenate([rr] + [np.full(e[0].size, r) for r, e in zip(owners, extra)])
+            ss = np.concatenate([ss] + [e[0] for e in extra])
+            u = np.concatenate([u] + [e[1] for e in extra])
+        return self.rank, rr, ss, u
+
+    def _extend(self, row: int, last: float):
+        """Candidates of ``row`` beyond site ``last``: more gaps from the row's own stream."""
+        generator = self.streams.generators[row // self.streams.block]
+        sites, us = [], []
+        while last < self.sites - 1:
+            more = generator.random((2, self.width))
+            position = last + np.cumsum(np.floor(np.minimum(np.log1p(-more[0]) * self.scale, self.sites)) + 1.0)
+            keep = position < self.sites
+            sites.append(position[keep].astype(np.int64))
+            us.append(more[1][keep] * self.top)
+            last = float(position[-1])
+        return np.concatenate(sites), np.concatenate(us)
 
 
 def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Streams, *,
@@ -79,9 +164,8 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
     recorded = np.zeros((R, times.size, X), dtype=np.int64)
     snapshots = []
     turns = 0
-    draws = np.empty((R, C + S))
-    drawn = draws.reshape(-1)
     neighbour_flat = neighbours.reshape(-1)
+    across = np.ascontiguousarray(neighbours.T)  # (directions, sites)
     rates = rules.rates()
     total = rates.sum(axis=1)
     share = np.divide(rates, total[:, None], out=np.zeros_like(rates), where=total[:, None] > 0)
@@ -92,7 +176,7 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
     closed = lattice.boundary == "closed"
     # The law read at every possible density n / S, cumulated over phenotypes (same
     # interpolation as SwitchingLaw.probs), so a decision is one table look-up.
-    by_count = rules.cumulative_at(np.arange(S + 1) / S) if deciding else None
+    by_count = rules.decision_columns(np.arange(S + 1) / S) if deciding else None
 
     def record(k):
         current = grid[:, :S]
@@ -107,44 +191,39 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         sweeps = int(np.ceil(span / dt_max - 1e-9)) if span > 0 else 0
         dt = span / sweeps if sweeps else 0.0
         chance = np.concatenate([[0.0], -np.expm1(-total * dt)])  # indexed by code
-        top_chance = chance.max()
+        top_chance = float(chance.max())
+        draws = _SweepDraws(streams, R, C, S, top_chance) if sweeps and top_chance > 0 else None
         for _ in range(sweeps):
             if upper is not None and (frozen | (cells == 0)).all():
                 break
-            streams.fill(draws)  # per replicate: C numbers for the class order, S for the turns
-            order = np.argsort(draws[:, :C], axis=1)
-            rank = np.empty_like(order)
-            np.put_along_axis(rank, order, np.arange(C)[None, :], axis=1)
-            u = draws[:, C:]
             live = ~frozen
             turns += int(cells[live].sum())
-            # Candidates below the largest chance first (few), then each against its own.
-            where = np.flatnonzero(u < top_chance)
-            if R == 1:
-                rr, ss = np.zeros(where.size, dtype=np.int64), where
-            else:
-                rr, ss = np.divmod(where, S)
+            if draws is None:
+                continue
+            # Candidates: the turns whose uniform falls below the largest chance (few); then
+            # each is held against its own cell's chance.
+            rank, rr, ss, u_now = draws.sweep(live & (cells > 0))
             codes_now = flat[rr * W + ss] if R > 1 else flat[ss]
-            u_now = drawn[rr * (C + S) + C + ss] if R > 1 else drawn[C + ss]
             chosen = u_now < chance[codes_now]
             if not live.all():
                 chosen &= live[rr]
-            rr, ss, u_now = rr[chosen], ss[chosen], u_now[chosen]
-            if rr.size == 0:
+            acting = np.flatnonzero(chosen)
+            if acting.size == 0:
                 continue
-            xs = codes_now[chosen].astype(np.int64) - 1
+            rr, ss, u_now = rr.take(acting), ss.take(acting), u_now.take(acting)
+            xs = codes_now.take(acting).astype(np.int64) - 1
             event, inside = event_index(xs, u_now / chance[xs + 1], share, lower)
             event = _ORDER[np.minimum(event, last_event[xs])]
             # Sort the acting cells by (turn of their class, event): each piece is a slice.
             key = (rank[rr, label[ss]] * 4 + event).astype(np.int16 if 4 * C < 2**15 else np.int64)
             sequence = np.argsort(key, kind="stable")
-            rr, ss, xs, inside = rr[sequence], ss[sequence], xs[sequence], inside[sequence]
+            rr, ss, xs, inside = rr.take(sequence), ss.take(sequence), xs.take(sequence), inside.take(sequence)
             ff = rr * W + ss
             # Where each divider or mover would go does not depend on the others: pick it now.
             pick = np.minimum((inside * N).astype(np.int64), N - 1)
             target_site = neighbour_flat[ss * N + pick]
             target = rr * W + target_site
-            bounds = np.concatenate([[0], np.cumsum(np.bincount(key, minlength=4 * C))])
+            bounds = [0] + np.cumsum(np.bincount(key, minlength=4 * C)).tolist()
             for slot in range(C):
                 base = 4 * slot
                 start_, divide_end, move_end, death_end, end_ = bounds[base:base + 5]
@@ -179,8 +258,10 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
                     cells -= np.bincount(r, minlength=R)
                 r = rr[deciding_]
                 if r.size and deciding:
-                    around = (flat[r[:, None] * W + neighbours[ss[deciding_]]] != 0).sum(axis=1)
-                    new = rules.decide_rows(around, by_count, cells[r], inside[deciding_])
+                    # Occupied neighbours, one neighbour direction (a contiguous row) at a time.
+                    seen = flat.take(across.take(ss[deciding_], axis=1) + r * W) != 0
+                    around = seen.sum(axis=0)
+                    new = rules.decide_columns(around, by_count, cells[r], inside[deciding_])
                     flat[ff[deciding_]] = (new + 1).astype(np.int8)
                 if upper is not None:
                     frozen |= cells >= upper
