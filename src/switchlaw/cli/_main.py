@@ -17,12 +17,22 @@ DEMOS = {
 }
 
 
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("switchlaw")
+    except PackageNotFoundError:  # running from a source tree that is not installed
+        return "unknown"
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="switchlaw",
         description="Derive phenotype switching laws from information theory and see what they do "
         "to a cell population. Research software, not a medical device.",
     )
+    parser.add_argument("--version", action="version", version=f"switchlaw {_version()}")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND")
     check = commands.add_parser("check", help="validate a study file")
     check.add_argument("study", help="path to a study file (TOML)")
@@ -75,8 +85,15 @@ def _run(text: str, source: str, args) -> int:
             return _fail(f"--seed must be >= 0 (got {args.seed})")
         study.study.seed = args.seed
     out = Path(args.out)
-    if out.exists() and not args.force:
-        return _fail(f"--out {out} already exists (use --force to replace it)")
+    if out.exists():
+        if not args.force:
+            return _fail(f"--out {out} already exists (use --force to replace it)")
+        from ._outputs import _check_replaceable
+
+        try:
+            _check_replaceable(out.resolve())
+        except OutputExists as error:
+            return _fail(str(error))
     from .._errors import InputError
 
     try:

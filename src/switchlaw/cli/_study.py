@@ -197,6 +197,51 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
     return problems
 
 
+def _trial(study: Study) -> list[tuple[str, str, object]]:
+    """Build the environment and evaluate every payoff at a few densities of the grid.
+
+    Problems that only show when numbers are computed (a payoff that overflows or divides by
+    zero, distribution parameters scipy refuses, bins that miss the support) are reported
+    here with their key, so ``check`` finds them before ``run`` does.
+    """
+    from .._errors import InputError
+
+    grid = study.decision.densities.values()
+    densities = sorted({float(grid[0]), float(grid[len(grid) // 2]), float(grid[-1])})
+    environment = environment_function(study)
+    problems = []
+    for rho in densities:
+        try:
+            env = environment(rho)
+        except (InputError, ValueError, TypeError, ArithmeticError, _expressions.ExpressionError) as error:
+            return [("senses", f"cannot build the environment at density {rho:g}: {error}", None)]
+        values = env.values if env.values.ndim == 1 else env.values[:, 0]
+        for name in study.study.phenotypes:
+            spec = study.payoff[name]
+            if not isinstance(spec, str):
+                continue
+            try:
+                column = np.broadcast_to(
+                    np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES),
+                                                     {"y": values, "density": np.float64(rho)}), dtype=float),
+                    values.shape,
+                )
+            except _expressions.ExpressionError as error:
+                problems.append((f"payoff.{name}", str(error), spec))
+                continue
+            bad = ~np.isfinite(column)
+            if bad.any():
+                y = int(np.argmax(bad))
+                problems.append((
+                    f"payoff.{name}",
+                    f"gives {column[y]} at density {rho:g}, y = {values[y]:g}: payoffs must be finite",
+                    spec,
+                ))
+        if problems:
+            return problems
+    return problems
+
+
 def load_text(text: str, source: str) -> Study:
     """Parse and validate a study given as TOML text; raise :class:`StudyError`."""
     try:
@@ -212,6 +257,8 @@ def load_text(text: str, source: str) -> Study:
             lines.append(f"{source}: {path or '(top level)'}: {item['msg']} (got {_show(item.get('input'))})")
         raise StudyError(lines) from None
     problems = _semantic(study)
+    if not problems:
+        problems = _trial(study)
     if problems:
         raise StudyError([f"{source}: {path}: {message} (got {_show(value)})" for path, message, value in problems])
     return study
@@ -249,7 +296,7 @@ def payoff_functions(study: Study) -> dict:
 
     def table(env):
         values = env.values if env.values.ndim == 1 else env.values[:, 0]
-        density = env.density if env.density is not None else 0.0
+        density = np.float64(env.density if env.density is not None else 0.0)
         out = []
         for name in study.study.phenotypes:
             spec = columns[name]

@@ -154,8 +154,17 @@ def _bisection(u: np.ndarray, p: np.ndarray, budget: float) -> Policy:
     Below the first critical beta ``I = 0``, so the search starts there.
     """
     first = first_critical_beta_of(u, p)
+    if not math.isfinite(first):
+        # One phenotype is best in every state: it uses no information and no budget binds.
+        policy = solve_checked(u, p, 0.0)
+        return make_policy(
+            u, p, policy.probs, beta=math.inf, objective="min-information", converged=True,
+            iterations=0, status="budget-slack",
+            message="one phenotype is best in every state: the budget does not bind",
+            method="closed-form",
+        )
     if budget == 0:
-        return solve_checked(u, p, first if math.isfinite(first) else 0.0)
+        return solve_checked(u, p, first)
 
     def excess(log_beta):
         return solve_checked(u, p, math.exp(log_beta)).information_bits - budget
@@ -182,7 +191,10 @@ def _conic(u, p, budget, fractions, extra, solver) -> Policy:
     import cvxpy as cp
 
     keep = p > 0
-    uk, pk = u[keep], p[keep]
+    # The solver's tolerances are absolute: work with payoffs of unit spread, then rescale the
+    # multiplier (beta is in nats per *original* payoff unit).
+    spread = float(np.ptp(u[keep])) or 1.0
+    uk, pk = (u[keep] - u[keep].min()) / spread, p[keep]
     m, n = uk.shape
     q = cp.Variable((m, n), nonneg=True)
     r = cp.Variable(n, nonneg=True)
@@ -213,10 +225,10 @@ def _conic(u, p, budget, fractions, extra, solver) -> Policy:
         )
     if problem.status not in ("optimal", "optimal_inaccurate"):
         raise InfeasibleError(f"the conic solver ended with status {problem.status!r}")
-    multiplier = float(budget_constraint.dual_value)
+    dual = float(budget_constraint.dual_value)  # per nat, in unit-spread payoffs
     marginal = np.clip(np.asarray(r.value, dtype=float), 0.0, None)
     marginal /= marginal.sum()
-    beta = 1.0 / multiplier if multiplier > 1e-9 else math.inf
+    beta = 1.0 / (dual * spread) if dual > 1e-9 else math.inf
     q_kept = np.clip(np.asarray(q.value, dtype=float), 0.0, None)
     q_kept /= q_kept.sum(axis=1, keepdims=True)
     probs = np.empty_like(u)

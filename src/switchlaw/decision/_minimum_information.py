@@ -105,13 +105,12 @@ def first_critical_beta(payoff, env) -> float:
     >>> round(first_critical_beta([[0.0, -1.0], [-1.0, 0.0]], [0.8, 0.2]), 10)
     1.3862943611
     """
-    from .._validate import as_distribution, as_payoff
+    from ._solve import check_problem
 
-    p = as_distribution(env, "env")
-    u = as_payoff(payoff, p.size)
+    u, p = check_problem(payoff, env)  # a receptor turns the payoff into E[u | sensed state]
     if u.shape[1] == 1:
         return float("inf")
-    return first_critical_beta_of(_unique_phenotypes(u)[0], p)
+    return first_critical_beta_of(_unique_phenotypes(u, p)[0], p)
 
 
 @dataclass(frozen=True)
@@ -125,7 +124,7 @@ class Prepared:
 
     @classmethod
     def build(cls, payoff: np.ndarray, env: np.ndarray) -> "Prepared":
-        distinct, inverse, counts = _unique_phenotypes(payoff)
+        distinct, inverse, counts = _unique_phenotypes(payoff, env)
         return cls(distinct, inverse, counts, Gaps.build(distinct, env))
 
     def merge(self, r: np.ndarray) -> np.ndarray:
@@ -137,17 +136,19 @@ class Prepared:
         return r_distinct[self.inverse] / self.counts[self.inverse]
 
 
-def _unique_phenotypes(payoff: np.ndarray):
-    """Merge phenotypes with identical payoff columns (they share mass equally).
+def _unique_phenotypes(payoff: np.ndarray, env: np.ndarray | None = None):
+    """Merge phenotypes whose payoffs agree on every state that occurs (``p(y) > 0``).
 
-    Returns the distinct columns (in order of first appearance), the group of every phenotype,
-    and the group sizes.
+    The problem cannot tell them apart, so they share their mass equally (a fixed convention
+    that keeps the answer independent of starting points). Returns the distinct columns (in
+    order of first appearance), the group of every phenotype, and the group sizes.
     """
     n = payoff.shape[1]
+    seen = payoff if env is None else payoff[env > 0]
     group = np.arange(n)
     for j in range(1, n):
         for i in range(j):
-            if group[i] == i and np.array_equal(payoff[:, i], payoff[:, j]):
+            if group[i] == i and np.array_equal(seen[:, i], seen[:, j]):
                 group[j] = i
                 break
     firsts = np.flatnonzero(group == np.arange(n))

@@ -149,7 +149,8 @@ def evaluate(problem: Reduced, r: np.ndarray) -> Evaluation:
 def policy_from_marginal(payoff: np.ndarray, beta: float, r: np.ndarray) -> np.ndarray:
     """``q(x|y) ∝ r(x) exp(beta u(y,x))`` for every state, computed in log domain."""
     with np.errstate(divide="ignore"):
-        logits = beta * payoff + np.log(r)[None, :]
+        # Gaps to each row's best payoff: a constant added to the payoff changes nothing.
+        logits = beta * (payoff - payoff.max(axis=1, keepdims=True)) + np.log(r)[None, :]
     logits -= logits.max(axis=1, keepdims=True)
     q = np.exp(logits)
     q /= q.sum(axis=1, keepdims=True)

@@ -6,7 +6,7 @@ import numpy as np
 from scipy.special import entr
 
 from .._errors import InputError
-from .._validate import as_distribution, as_nonnegative, as_payoff, choice
+from .._validate import as_distribution, as_nonnegative, as_payoff, as_positive, choice
 from ..information._measures import NATS_PER_BIT, _mutual_information_nats
 from ._minimum_information import METHODS, minimum_information_marginal, policy_for_marginal
 from ._results import Policy
@@ -168,7 +168,7 @@ def _min_information(u, p, beta, *, reference, method, tol, max_iter, initial_ma
             "(min-information chooses its own marginal)"
         )
     choice(method, "method", METHODS)
-    tol = as_nonnegative(tol, "tol")
+    tol = as_positive(tol, "tol")
     start = None
     if initial_marginal is not None:
         start = as_distribution(initial_marginal, "initial_marginal")

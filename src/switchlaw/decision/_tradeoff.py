@@ -79,7 +79,14 @@ class _Locator:
                         self.kkt_excess, a, hi, args=(smaller, x, start),
                         xtol=BETA_XTOL, rtol=4 * np.finfo(float).eps,
                     )
-                    return [self._record(beta, s_lo, s_hi)]
+                    # Trust the root only if it is the single change in the interval: the
+                    # full solutions just either side must have the two end supports.
+                    step = 1e-7 * max(1.0, beta)
+                    if (
+                        _support(self.full(max(beta - step, lo), r_lo)) == s_lo
+                        and _support(self.full(min(beta + step, hi), r_hi)) == s_hi
+                    ):
+                        return [self._record(beta, s_lo, s_hi)]
             except (ValueError, FloatingPointError):
                 pass
         if hi - lo <= BETA_XTOL * max(1.0, hi):
@@ -172,15 +179,17 @@ def _critical_betas(prepared: Prepared, p, grid, sorted_policies) -> tuple:
     locator = _Locator(prepared, p)
     merged = prepared.merge
 
-    found = []
-    for i in range(grid.size - 1):
-        if grid[i] < grid[i + 1]:
-            found += locator.between(
-                grid[i], merged(sorted_policies[i].marginal),
-                grid[i + 1], merged(sorted_policies[i + 1].marginal),
-            )
-    # The first transition has a closed form (Kuhn–Tucker conditions): use it exactly.
+    # The first transition has a closed form (Kuhn–Tucker conditions): add it to the points
+    # between which changes are located, so that it is never missed, and report it exactly.
     first = first_critical_beta_of(distinct, p)
+    points = [(float(b), merged(q.marginal)) for b, q in zip(grid, sorted_policies)]
+    if grid[0] < first < grid[-1]:
+        points.append((first, locator.full(first, None)))
+        points.sort(key=lambda item: item[0])
+    found = []
+    for (lo, r_lo), (hi, r_hi) in zip(points[:-1], points[1:]):
+        if lo < hi:
+            found += locator.between(lo, r_lo, hi, r_hi)
     exact = [False] * len(found)
     if found and first > 0:
         nearest = int(np.argmin([abs(f[0] - first) for f in found]))

@@ -181,6 +181,7 @@ def write_atomically(files: dict, *, overwrite: bool) -> tuple:
                 stream.write(content)
                 stream.flush()
                 os.fsync(stream.fileno())
+            os.chmod(name, 0o666 & ~_umask())  # mkstemp makes 0600; follow the user's umask
         existed = {path: path.exists() for path in files}
         for path, name in temporary.items():
             os.replace(name, path)
@@ -273,3 +274,9 @@ def export(obj, path, *, format=None, overwrite=False, allow_unconverged=False, 
     converged = True if law is None else bool(np.all(law.converged))
     paths = write_atomically(files, overwrite=bool(overwrite))
     return Exported(fmt.name, paths, digest, converged)
+
+
+def _umask() -> int:
+    current = os.umask(0)
+    os.umask(current)
+    return current

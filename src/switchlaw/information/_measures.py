@@ -100,8 +100,9 @@ def _mutual_information_nats(p: np.ndarray, q: np.ndarray) -> float:
     """Unchecked kernel: ``I(X;Y)`` in nats, never negative."""
     keep = p > 0
     p, q = p[keep], q[keep]
-    r = p @ q
-    return max(float(p @ rel_entr(q, r[None, :]).sum(axis=1)), 0.0)
+    # r(x) >= p(y) q(x|y) always; the bound keeps an underflowed r from making a term infinite.
+    r = np.maximum((p @ q)[None, :], p[:, None] * q)
+    return max(float(p @ rel_entr(q, r).sum(axis=1)), 0.0)
 
 
 def kl_divergence(p, q, *, unit: str = "nats") -> float:

@@ -244,6 +244,11 @@ def continuous_signal(distribution, edges, *, receptor=None, description: str = 
     if not (np.diff(bounds) > 0).all():
         raise InputError("`edges` must be strictly increasing")
     cdf = distribution.cdf(bounds)
+    if not np.isfinite(cdf).all():
+        raise InputError(
+            "`distribution` parameters are invalid: its CDF is not a number at the edges "
+            f"(got {getattr(distribution.dist, 'name', 'distribution')} with {distribution.kwds or distribution.args})"
+        )
     outside = float(cdf[0] + (1.0 - cdf[-1]))
     if not outside <= COVERAGE_TOLERANCE:
         raise InputError(
@@ -344,9 +349,16 @@ def product_environment(*environments: Environment) -> Environment:
         [col[g.ravel()] for col, g in zip(columns, grids)]
     )
     noisy = any(env.channel is not None for env in environments)
+    sensed = None
+    if noisy:
+        sensed_columns = [env.decision_values if env.decision_values.ndim == 2 else env.decision_values[:, None]
+                          for env in environments]
+        sensed_grids = np.meshgrid(*[np.arange(c.shape[0]) for c in sensed_columns], indexing="ij")
+        sensed = np.column_stack([col[g.ravel()] for col, g in zip(sensed_columns, sensed_grids)])
     return Environment(
         states=np.arange(probs.size), probs=probs, values=values, kind="product",
         channel=channel if noisy else None, true_probs=hidden if noisy else None,
+        sensed_values=sensed,
         description=" x ".join(env.description or env.kind for env in environments),
     )
 

@@ -9,7 +9,7 @@ from typing import Callable
 import numpy as np
 
 from .._errors import InputError
-from .._validate import as_array, as_nonnegative, as_positive, choice
+from .._validate import as_array, as_distribution, as_nonnegative, as_positive, choice
 from ..decision._budget import _bisection, _greedy
 from ..decision._costs import beta_from_cost
 from ..decision._results import Policy
@@ -299,7 +299,11 @@ def derive_law(
         p = env.probs
         state_probs.append(p)
         if objective == "max-entropy":
-            ref = None if reference is None else np.asarray(reference, dtype=float)
+            ref = None if reference is None else as_distribution(reference, "reference")
+            if ref is not None and ref.size != u.shape[1]:
+                raise InputError(
+                    f"`reference` must have one entry per phenotype ({u.shape[1]}) (got {ref.size})"
+                )
             q = max_entropy_policy(u, beta_value, ref)
             policy = make_policy(u, p, q, beta=beta_value, objective=objective, converged=True,
                                  iterations=0, status="closed-form", message="softmax")

@@ -302,7 +302,11 @@ class MeanField:
         """Every equilibrium in ``[0, 1]`` at ``beta``, zero first, by increasing density."""
         beta = as_nonnegative(beta, "beta")
         roots = roots_on_unit_interval(lambda r: self.reduced(r, beta), points=points)
-        roots = [r for r in roots if abs(self.reduced(r, beta)) < 1e-8]
+        # Brent's method can also converge onto a jump of the reduced equation (where growth
+        # outruns switching); keep true roots, judged against the equation's own scale.
+        scale = max(abs(self.reduced(r, beta)) for r in np.linspace(0.0, 1.0, 11)
+                    if np.isfinite(self.reduced(r, beta))) if roots else 1.0
+        roots = [r for r in roots if abs(self.reduced(r, beta)) <= 1e-8 * max(scale, 1e-300)]
         return [self._equilibrium(0.0, beta)] + [self._equilibrium(r, beta) for r in roots]
 
     def low_density_growth(self, beta) -> float:
@@ -414,6 +418,15 @@ class MeanField:
                 ):
                     critical.append(found)
         critical.sort(key=lambda c: c.value)
+        # Two branches traced from different starts can share a turning point: keep it once.
+        unique = []
+        for point in critical:
+            if not any(
+                point.kind == kept.kind and abs(point.value - kept.value) <= 1e-7 * max(1.0, abs(kept.value))
+                for kept in unique
+            ):
+                unique.append(point)
+        critical = unique
         return BifurcationDiagram(
             parameter=parameter, value_range=(lo, hi), branches=tuple(branches),
             zero_values=grid, zero_stable=zero < 0, critical_points=tuple(critical),

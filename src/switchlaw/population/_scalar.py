@@ -78,6 +78,8 @@ def roots_on_unit_interval(function, *, points: int = 201, xtol: float = 1e-13) 
     # Cells where |g| dips without a sign change may hide a pair of close roots (or a double
     # root at a fold): look at the signed extremum there.
     magnitude = np.abs(values)
+    # "Zero" relative to the function's own scale on the grid (its units are the user's).
+    floor = 1e-12 * max(float(np.max(magnitude[np.isfinite(magnitude)], initial=0.0)), 1e-300)
     for i in range(1, points - 1):
         if not (magnitude[i] < magnitude[i - 1] and magnitude[i] <= magnitude[i + 1]):
             continue
@@ -88,7 +90,7 @@ def roots_on_unit_interval(function, *, points: int = 201, xtol: float = 1e-13) 
         found = minimize_scalar(lambda x: sign * function(x), bounds=(a, b), method="bounded",
                                 options={"xatol": 1e-12})
         low = sign * found.fun
-        if abs(low) <= 1e-12:
+        if abs(low) <= floor:
             candidates = [float(found.x)]
         elif np.sign(low) != sign:
             candidates = [
