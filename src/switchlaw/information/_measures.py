@@ -100,8 +100,9 @@ def _mutual_information_nats(p: np.ndarray, q: np.ndarray) -> float:
     """Unchecked kernel: ``I(X;Y)`` in nats, never negative."""
     keep = p > 0
     p, q = p[keep], q[keep]
-    # r(x) >= p(y) q(x|y) always; the bound keeps an underflowed r from making a term infinite.
-    r = np.maximum((p @ q)[None, :], p[:, None] * q)
+    # r(x) >= p(y) q(x|y) always; the bound (floored at the smallest normal float) keeps an
+    # underflowed r from making a negligible term infinite.
+    r = np.maximum(np.maximum((p @ q)[None, :], p[:, None] * q), np.finfo(float).tiny)
     return max(float(p @ rel_entr(q, r).sum(axis=1)), 0.0)
 
 
