@@ -38,9 +38,11 @@ def plot_law(law, *, phenotype=None, axes=None):
     )
     heat.figure.colorbar(image, ax=heat, label=f"q({names[index]} | state, density)")
     heat.set_xlabel("density")
-    heat.set_ylabel("sensed state")
+    heat.set_ylabel("sensed signal value y")
     if law.states.size <= 20:
-        heat.set_yticks(states, [str(s) for s in law.states])
+        values = law.state_values if law.state_values.ndim == 1 else None
+        labels = [f"{v:.3g}" for v in values] if values is not None else [str(s) for s in law.states]
+        heat.set_yticks(states, labels)
     heat.set_title(f"probability of {names[index]}")
     fractions = np.einsum("ky,kyx->kx", law.state_probs, law.table)
     for j, name in enumerate(names):
@@ -53,13 +55,15 @@ def plot_law(law, *, phenotype=None, axes=None):
     return heat, lines
 
 
-def plot_tradeoff(curve, *, ax=None):
+def plot_tradeoff(curve, *, ax=None, phenotypes=None):
     """The information–payoff curve with its critical betas marked.
 
     Parameters
     ----------
     curve : Tradeoff
     ax : matplotlib Axes, optional
+    phenotypes : sequence of str, optional
+        Names used when labelling which phenotypes enter or leave.
 
     Returns
     -------
@@ -69,13 +73,17 @@ def plot_tradeoff(curve, *, ax=None):
 
     if ax is None:
         _, ax = plt.subplots(figsize=(5, 4), constrained_layout=True)
+
+    def name(x):
+        return str(phenotypes[x]) if phenotypes is not None else str(x)
+
     order = np.argsort(curve.betas)
     ax.plot(curve.information_bits[order], curve.expected_payoff[order], marker=".", lw=1.5)
     ax.set_xlabel("information I(X;Y) (bits)")
     ax.set_ylabel("expected payoff E[u]")
     for i, critical in enumerate(curve.critical_betas):
         change = ", ".join(
-            [f"+{x}" for x in critical.entering] + [f"−{x}" for x in critical.leaving]
+            [f"+{name(x)}" for x in critical.entering] + [f"−{name(x)}" for x in critical.leaving]
         )
         ax.annotate(f"critical β = {critical.beta:.4g} (phenotypes {change})",
                     xy=(0.02, 0.95 - 0.06 * i), xycoords="axes fraction", fontsize=8)

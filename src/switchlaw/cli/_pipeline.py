@@ -147,6 +147,18 @@ def _finite(value):
     return value if math.isfinite(value) else ("inf" if value > 0 else "-inf" if value < 0 else "nan")
 
 
+def study_beta(results) -> float | None:
+    """The study's own sensitivity (from beta or cost per bit); None for a budget in bits."""
+    import switchlaw as sl
+
+    decision = results.study.decision
+    if decision.beta is not None:
+        return float(decision.beta)
+    if decision.cost_per_bit is not None:
+        return sl.beta_from_cost(decision.cost_per_bit)
+    return None
+
+
 def _scan_rows(dataset) -> list[dict]:
     """Per-beta rows of the regime scan, JSON-ready (NaN becomes null)."""
     rows = []
@@ -190,11 +202,20 @@ def summary(results: Results) -> dict:
         "tradeoff": {
             "reference_density": results.reference_density,
             "critical_betas": [
-                {"beta": c.beta, "entering": list(c.entering), "leaving": list(c.leaving), "exact": c.exact}
+                {"beta": c.beta, "entering": [law.phenotypes[x] for x in c.entering],
+                 "leaving": [law.phenotypes[x] for x in c.leaving], "exact": c.exact}
                 for c in results.curve.critical_betas
             ],
         },
     }
+    out["law"]["betas"] = [_finite(b) for b in law.betas]
+    beta = study_beta(results)
+    if beta is not None and results.model is not None:
+        out["at_study_beta"] = {
+            "beta": beta,
+            "regime": results.model.regime(beta),
+            "allee_threshold": _finite(results.model.allee_threshold(beta)),
+        }
     if results.scan is not None:
         out["population"] = {
             "regimes": _scan_rows(results.scan),
@@ -236,15 +257,23 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
         plt.close(fig)
         made[name] = figures / f"{name}.png"
 
-    fig, axes = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
-    sl.plot_law(results.law, axes=axes)
-    save(fig, "law")
+    names = list(results.law.phenotypes)
+    shown = names[1:] if len(names) == 2 else names  # two phenotypes: one map says it all
+    for name in shown:
+        fig, axes = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
+        sl.plot_law(results.law, phenotype=name, axes=axes)
+        save(fig, "law" if len(shown) == 1 else f"law_{name}")
     fig, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
-    sl.plot_tradeoff(results.curve, ax=ax)
+    sl.plot_tradeoff(results.curve, ax=ax, phenotypes=names)
     save(fig, "tradeoff")
     if results.diagram is not None:
         fig, ax = plt.subplots(figsize=(6.5, 4.2), constrained_layout=True)
         sl.plot_bifurcation(results.diagram, ax=ax)
+        beta = study_beta(results)
+        if beta is not None and results.diagram.value_range[0] <= beta <= results.diagram.value_range[1]:
+            ax.axvline(beta, color="C2", lw=1, ls=":")
+            ax.annotate("study's β", (beta, 0.97), xycoords=("data", "axes fraction"), fontsize=8,
+                        color="C2", ha="left", va="top", xytext=(3, 0), textcoords="offset points")
         save(fig, "bifurcation")
     if results.regime_map is not None:
         fig, ax = plt.subplots(figsize=(6.5, 4.5), constrained_layout=True)

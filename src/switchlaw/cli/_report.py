@@ -62,15 +62,24 @@ def render(results, data: dict, figures: dict) -> str:
     parts.append("<h2>The study as given</h2>")
     parts.append(f"<pre>{html.escape(results.text)}</pre>")
 
-    route = {"beta": "β", "cost_per_bit": "sensing cost per bit", "bits": "information budget (bits)"}[law.route]
+    route = {"beta": "β", "cost_per_bit": "sensing cost (payoff units per bit)",
+             "bits": "information budget (bits)"}[law.route]
     parts.append("<h2>The switching law</h2>")
     parts.append(
         f"<p>Objective <code>{law.objective}</code>, derived from {route} = {law.setting:g} over "
-        f"{law.densities.size} densities in [{law.densities[0]:g}, {law.densities[-1]:g}]. Left: the "
-        "probability of a phenotype for each sensed state and density. Right: mean-field phenotype "
-        "fractions, averaged over the distribution of sensed states at each density.</p>"
+        f"{law.densities.size} densities in [{law.densities[0]:g}, {law.densities[-1]:g}]"
+        + (f" (β = {law.betas[0]:.6g} nats per payoff unit)" if law.route == "cost_per_bit" else "")
+        + ". Left: the probability of the named phenotype for each sensed signal value and density. "
+        "Right: mean-field phenotype fractions, averaged over the distribution of sensed states at "
+        "each density.</p>"
     )
-    parts.append(_image(figures["law"], "switching law heat map and fractions"))
+    if law.route == "bits":
+        parts.append(
+            f"<p>With a budget each density has its own β: from {min(law.betas):.4g} to "
+            f"{max(law.betas):.4g} nats per payoff unit (∞ where the budget does not bind).</p>"
+        )
+    for key in sorted(k for k in figures if k == "law" or k.startswith("law_")):
+        parts.append(_image(figures[key], f"switching law heat map and fractions ({key})"))
     step = max(1, law.densities.size // 20)
     fractions = law.fractions(law.densities[::step])
     rows = [
@@ -97,15 +106,30 @@ def render(results, data: dict, figures: dict) -> str:
     ))
     parts.append("</details>")
     if curve.critical_betas:
-        parts.append("<p>Phenotypes enter or leave the policy at: " + ", ".join(
-            f"β = {c.beta:.6g}" for c in curve.critical_betas) + ".</p>")
+        def change(c):
+            moves = [f"{law.phenotypes[x]} enters" for x in c.entering]
+            moves += [f"{law.phenotypes[x]} leaves" for x in c.leaving]
+            return f"β = {c.beta:.6g} ({', '.join(moves)})"
+
+        parts.append("<p>The set of phenotypes in use changes at " + "; ".join(
+            change(c) for c in curve.critical_betas) + ".</p>")
 
     if results.diagram is not None:
         parts.append("<h2>Population: equilibria and bifurcations in β</h2>")
         parts.append(
-            "<p>Stable equilibria solid, unstable dashed. A strong Allee effect (bistability) means a "
-            "colony below the threshold density dies out in the mean-field model.</p>"
+            "<p>Stable equilibria solid, unstable dashed. Regimes: <em>extinction</em> — no positive "
+            "state is stable; <em>monostable</em> — any small population grows to one stable density; "
+            "<em>weak Allee</em> — it grows, but its per-capita growth first rises with density; "
+            "<em>strong Allee</em> — bistable: a colony below the threshold density dies out in the "
+            "mean-field model.</p>"
         )
+        at = data.get("at_study_beta")
+        if at is not None:
+            threshold = "" if at["allee_threshold"] is None else f", Allee threshold density {at['allee_threshold']:.4g}"
+            parts.append(
+                f"<p><strong>At the study's β = {at['beta']:.6g}</strong> (dotted line) the population is "
+                f"in the <em>{html.escape(at['regime'])}</em> regime{threshold}.</p>"
+            )
         parts.append(_image(figures["bifurcation"], "bifurcation diagram in beta"))
         crit = results.diagram.critical_points
         parts.append("<h3>Critical β values</h3>")
@@ -125,6 +149,12 @@ def render(results, data: dict, figures: dict) -> str:
     if results.regime_map is not None:
         rm = results.regime_map
         parts.append(f"<h2>Regime map: β × {html.escape(rm.parameter)}</h2>")
+        what = {"death_scale": "every phenotype's death rate", "division_scale": "every phenotype's division rate"}
+        parts.append(
+            f"<p>The vertical axis multiplies {what.get(rm.parameter, rm.parameter)} of the study by the "
+            "value shown (1 is the study as given). Colours are the regimes defined above; squares and "
+            "dots mark transcritical points and folds found by continuation in β.</p>"
+        )
         parts.append(_image(figures["regime_map"], "regime map"))
         parts.append("<details><summary>Numbers behind the figure</summary>")
         parts.append(_table([rm.parameter, "critical β (kind)"], [
