@@ -39,13 +39,13 @@ def test_every_problem_is_one_line_with_key_path_and_value():
 @pytest.mark.parametrize(
     "old, new, expected",
     [
-        ('beta = 4.0', 'beta = 4.0\nbits = 0.3', "study.toml: decision: give exactly one of beta, cost_per_bit, bits"),
+        ('beta = 12.0', 'beta = 12.0\nbits = 0.3', "study.toml: decision: give exactly one of beta, cost_per_bit, bits"),
         ('roam = "1 - y / 6"', 'roam = "1 - z / 6"', "study.toml: payoff.roam: unknown name 'z'"),
         ('roam = "1 - y / 6"', 'roam = "1 - y / 6"\nrest = "0.5"', "study.toml: payoff.rest: unknown phenotype"),
         ('death = { divide = 0.27, roam = 0.27 }', 'death = { divide = 0.27, roam = -0.1 }', "study.toml: population.death.roam: rates must be finite and >= 0 (got -0.1)"),
         ('formats = ["csv", "netcdf", "sbml"]', 'formats = ["csv", "xlsx"]', "study.toml: exports.formats[1]: unknown format"),
         ('densities = { start = 0.0, stop = 1.0, points = 101 }', 'densities = { start = 0.0, stop = 1.5, points = 101 }', "study.toml: decision.densities: densities must satisfy 0 <= start < stop <= 1"),
-        ('beta = 4.0', 'beta = -4.0', "study.toml: decision.beta: Input should be greater than or equal to 0 (got -4.0)"),
+        ('beta = 12.0', 'beta = -4.0', "study.toml: decision.beta: Input should be greater than or equal to 0 (got -4.0)"),
     ],
 )
 def test_study_errors(old, new, expected):
