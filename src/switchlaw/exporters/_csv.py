@@ -95,28 +95,42 @@ def fill(path: Path, cells, shape: tuple, what: str) -> np.ndarray:
     return array
 
 
-def read(path: Path, sidecar: dict):
-    """The law dataset from a CSV table and its sidecar."""
-    arrays = {name: from_json_values(name, sidecar[name]) for name in SIDECAR_ARRAYS}
-    phenotypes = sidecar["phenotypes"]
+def indexed_rows(path: Path, sidecar: dict, arrays: dict, *, phenotype_columns: int, numbers: int):
+    """Rows of a long-format table as ``(density index, state index, phenotype indices, values)``.
+
+    Shared by every long CSV table: the first two columns are density and state, then
+    ``phenotype_columns`` phenotype names, and the last ``numbers`` columns are numbers. Returns
+    the list of rows and the sizes ``(densities, states, phenotypes)``.
+    """
     columns = sidecar["csv"]["columns"]
     densities = index(arrays["densities"].tolist(), path, "densities")
     states = index(arrays["states"].tolist(), path, "states")
-    names = index(phenotypes, path, "phenotypes")
-    k, m, n = len(densities), len(states), len(names)
+    names = index(sidecar["phenotypes"], path, "phenotypes")
     width = len(columns)
-    table, state_probs = [], []
+    first = width - numbers - phenotype_columns
+    out = []
     try:
         for row in rows(path, columns):
             if len(row) != width:
                 raise InputError(f"`path` {str(path)!r}: every row must have {width} fields (got {row})")
-            i = densities[float(row[0])]
-            y = states[parse_state(row[1], arrays["states"])]
-            x = names[row[width - 3]]
-            table.append(((i, y, x), float(row[width - 2])))
-            state_probs.append(((i, y), float(row[width - 1])))
+            out.append((
+                densities[float(row[0])],
+                states[parse_state(row[1], arrays["states"])],
+                tuple(names[row[j]] for j in range(first, first + phenotype_columns)),
+                tuple(float(row[j]) for j in range(width - numbers, width)),
+            ))
     except (KeyError, ValueError) as error:
         raise InputError(f"`path` {str(path)!r}: a row names a value not in the sidecar ({error})") from None
+    return out, (len(densities), len(states), len(names))
+
+
+def read(path: Path, sidecar: dict):
+    """The law dataset from a CSV table and its sidecar."""
+    arrays = {name: from_json_values(name, sidecar[name]) for name in SIDECAR_ARRAYS}
+    phenotypes = sidecar["phenotypes"]
+    found, (k, m, n) = indexed_rows(path, sidecar, arrays, phenotype_columns=1, numbers=2)
+    table = [((i, y, x), values[0]) for i, y, (x,), values in found]
+    state_probs = [((i, y), values[1]) for i, y, _, values in found]
     arrays["probability"] = fill(path, table, (k, m, n), "probability")
     arrays["state_probability"] = fill(path, state_probs, (k, m), "state_probability")
     return law_dataset(arrays, phenotypes, sidecar["metadata"])

@@ -18,7 +18,7 @@ import numpy as np
 
 from .._errors import InputError
 from .._validate import as_positive, choice
-from ._csv import fill, index, parse_state, rows, sidecar_path, value_columns
+from ._csv import fill, indexed_rows, sidecar_path, value_columns
 from ._provenance import TIME_UNITS, UNITS, law_metadata, sha256_of_law
 from ._registry import REQUIRED, Format, register
 from ._tables import STEP_KIND, attributes, axes, dumps, from_json_values, header, law_arrays, number, state_text
@@ -84,22 +84,8 @@ def step_dataset(arrays: dict, phenotypes, steps: np.ndarray, metadata: dict, st
 def read(path: Path, sidecar: dict):
     arrays = {name: from_json_values(name, sidecar[name]) for name in AXES}
     phenotypes = sidecar["phenotypes"]
-    columns = sidecar["csv"]["columns"]
-    densities = index(arrays["densities"].tolist(), path, "densities")
-    states = index(arrays["states"].tolist(), path, "states")
-    names = index(phenotypes, path, "phenotypes")
-    k, m, n = len(densities), len(states), len(names)
-    width = len(columns)
-    cells = []
-    try:
-        for row in rows(path, columns):
-            if len(row) != width:
-                raise InputError(f"`path` {str(path)!r}: every row must have {width} fields (got {row})")
-            where = (densities[float(row[0])], states[parse_state(row[1], arrays["states"])],
-                     names[row[width - 3]], names[row[width - 2]])
-            cells.append((where, float(row[width - 1])))
-    except (KeyError, ValueError) as error:
-        raise InputError(f"`path` {str(path)!r}: a row names a value not in the sidecar ({error})") from None
+    found, (k, m, n) = indexed_rows(path, sidecar, arrays, phenotype_columns=2, numbers=1)
+    cells = [((i, y, a, b), values[0]) for i, y, (a, b), values in found]
     steps = fill(path, cells, (k, m, n, n), "step_probability")
     return step_dataset(arrays, phenotypes, steps, sidecar["metadata"], sidecar["step"])
 
