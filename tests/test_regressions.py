@@ -109,3 +109,18 @@ def test_force_never_replaces_a_folder_switchlaw_did_not_write(tmp_path, monkeyp
     assert stat.S_IMODE(out.stat().st_mode) == 0o755
     assert stat.S_IMODE((out / "law.csv").stat().st_mode) == 0o644
     assert main(["demo", "dormancy", "--out", str(out), "--quiet", "--force"]) == 0
+
+
+def test_poisson_receptor_refuses_an_unbounded_count_space():
+    with pytest.raises(sl.InputError, match="count states"):
+        sl.continuous_signal(stats.uniform(0, 1e9), [0.0, 1e9], receptor=sl.PoissonReceptor(1.0))
+
+
+def test_finite_tau_ignores_phenotypes_nobody_adopts():
+    # With f_x = 0 a phenotype's fast growth cannot make equilibria disappear: the reduced
+    # equation sum_x f_x / (1 - tau a_x) = 1 only involves adopted phenotypes (domain notes §4).
+    payoff = {"divide": sl.Linear(0.0, 1.0), "burst": sl.Linear(0.0, -50.0)}
+    model = sl.MeanField(payoff, lambda rho: sl.occupancy(4, rho), division=[1.0, 30.0],
+                         death=[0.2, 0.0], tau=1.0, objective="min-information")
+    found = model.equilibria(2.0)
+    assert [round(e.density, 8) for e in found] == [0.0, 0.8]  # logistic: 1 - d/b for "divide"

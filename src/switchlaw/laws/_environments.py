@@ -16,6 +16,8 @@ import numpy as np
 from .._errors import InputError
 from .._validate import as_array, as_distribution, as_positive, as_stochastic_matrix
 
+#: Largest count a Poisson receptor may resolve (its states are 0..count).
+MAX_COUNT_STATES = 10_000
 #: How far a discretised distribution's bins may fall short of covering its support.
 COVERAGE_TOLERANCE = 1e-9
 
@@ -195,8 +197,16 @@ class PoissonReceptor:
         from scipy import stats
 
         if self.max_count is not None:
-            return int(self.max_count)
-        return int(stats.poisson.ppf(1 - 1e-12, max(self.gain * values.max(), 1e-12))) + 1
+            top = int(self.max_count)
+        else:
+            top = int(stats.poisson.ppf(1 - 1e-12, max(self.gain * values.max(), 1e-12))) + 1
+        if top > MAX_COUNT_STATES:
+            raise InputError(
+                f"`receptor` would need {top + 1} count states (gain x largest signal is "
+                f"{self.gain * values.max():.3g}); at most {MAX_COUNT_STATES + 1}: lower the gain, "
+                "rescale the signal, or set max_count"
+            )
+        return top
 
     def channel(self, values: np.ndarray, edges: np.ndarray) -> np.ndarray:
         from scipy import stats

@@ -222,14 +222,17 @@ class MeanField:
         """The scalar equation whose positive roots are the equilibria.
 
         ``g(rho)`` in the fast-switching limit; ``sum_x f_x / (1 - tau a_x) - 1`` with finite
-        ``tau`` (``inf`` where some ``1 - tau a_x <= 0``: growth outruns switching there).
+        ``tau`` (``inf`` where ``1 - tau a_x <= 0`` for a phenotype that cells adopt: its
+        growth outruns switching there; phenotypes with ``f_x = 0`` do not count).
         """
         if self.tau is None:
             return self.growth(density, beta)
+        f = self.fractions(density, beta)
         denominator = 1.0 - self.tau * self.net_rates(density)
-        if (denominator <= 0).any():
+        used = f > 0
+        if (denominator[used] <= 0).any():
             return np.inf
-        return float(self.fractions(density, beta) @ (1.0 / denominator) - 1.0)
+        return float(f[used] @ (1.0 / denominator[used]) - 1.0)
 
     # --------------------------------------------------------------- dynamics
     def rhs(self, compartments, beta) -> np.ndarray:
