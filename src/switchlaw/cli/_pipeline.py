@@ -136,6 +136,7 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         results.regime_map = model.regime_map(
             np.linspace(pop.betas.start, pop.betas.stop, spec.beta_points), spec.parameter,
             spec.values.values(),
+            on_row=lambda done, total: progress.fraction(done, total, spec.parameter),
         )
     return results
 

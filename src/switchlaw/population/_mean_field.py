@@ -443,14 +443,15 @@ class MeanField:
             raise InputError(f"`beta_max` must exceed `beta_min` (got {lo!r} and {hi!r})")
         return list(self.continuation(lo, hi, **options).critical_points)
 
-    def regime_map(self, betas, parameter: str, values, *, points: int = 201) -> "RegimeMap":
+    def regime_map(self, betas, parameter: str, values, *, points: int = 201, on_row=None) -> "RegimeMap":
         """Regimes over a grid of beta x a second parameter, from critical-point continuation.
 
         For each value of the second parameter the critical betas are found by continuation in
         beta (:meth:`critical_betas`); equilibria change only there, so each interval between
         consecutive critical betas is classified at its two ends and midpoint and filled when
         they agree (point by point otherwise: weak Allee vs monostable is decided by the slope
-        of growth at zero density, which can change inside an interval).
+        of growth at zero density, which can change inside an interval). ``on_row(done, total)``,
+        if given, is called after each value of the second parameter (for progress bars).
         """
         beta_grid = as_array(betas, "betas", ndim=1)
         value_grid = as_array(values, "values", ndim=1)
@@ -477,6 +478,8 @@ class MeanField:
                 else:
                     for j in inside:
                         codes[i, j] = REGIMES.index(variant.regime(beta_grid[j], points=points))
+            if on_row is not None:
+                on_row(i + 1, value_grid.size)
         return RegimeMap(beta_grid, parameter, value_grid, codes, tuple(curves))
 
     def __repr__(self) -> str:
