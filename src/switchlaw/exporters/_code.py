@@ -10,6 +10,7 @@ import numpy as np
 
 from .._errors import InputError
 from ._provenance import CAUTION, sha256_of_fit, sha256_of_law, version
+from ._registry import Format, register
 
 #: Options of every code format (used when a law, not a fit, is exported).
 OPTIONS = {"phenotype": None, "kind": "logistic", "per_density": False}
@@ -81,3 +82,20 @@ def header(fit, digest: str, law) -> list:
                         "densities (exported on request)")
     lines.append(CAUTION)
     return lines
+
+
+def code_format(name: str, suffixes: tuple, source, description: str) -> Format:
+    """Register a code format whose ``source(fit, digest, law)`` gives the file's text."""
+
+    def write(obj, path, *, phenotype, kind, per_density) -> tuple:
+        fit, digest, law = resolve(obj, phenotype=phenotype, kind=kind, per_density=per_density)
+        return {path: source(fit, digest, law).encode()}, digest
+
+    return register(Format(
+        name=name,
+        suffixes=suffixes,
+        accepts=("FormulaFit", "SwitchingLaw"),
+        options=dict(OPTIONS),
+        write=write,
+        description=description,
+    ))

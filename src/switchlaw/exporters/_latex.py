@@ -3,10 +3,8 @@ parameter values, for a paper's methods section."""
 
 from __future__ import annotations
 
-from pathlib import Path
 
-from ._code import OPTIONS, expression, header, names, parameter_table, resolve
-from ._registry import Format, register
+from ._code import code_format, expression, header, names, parameter_table
 from ._tables import number
 
 #: Single-letter symbols for the parameters (multi-letter names would read as products).
@@ -59,16 +57,7 @@ def source(fit, digest: str, law) -> str:
     return "\n".join(lines) + "\n"
 
 
-def write(obj, path: Path, *, phenotype, kind, per_density) -> tuple:
-    fit, digest, law = resolve(obj, phenotype=phenotype, kind=kind, per_density=per_density)
-    return {path: source(fit, digest, law).encode()}, digest
-
-
-FORMAT = register(Format(
-    name="latex",
-    suffixes=(".tex",),
-    accepts=("FormulaFit", "SwitchingLaw"),
-    options=dict(OPTIONS),
-    write=write,
-    description="the closed-form fit as a LaTeX equation with its parameter values",
-))
+FORMAT = code_format(
+    "latex", (".tex",), source,
+    "the closed-form fit as a LaTeX equation with its parameter values",
+)

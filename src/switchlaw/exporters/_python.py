@@ -2,10 +2,8 @@
 
 from __future__ import annotations
 
-from pathlib import Path
 
-from ._code import OPTIONS, expression, header, identifier, names, parameter_table, resolve
-from ._registry import Format, register
+from ._code import code_format, expression, header, identifier, names, parameter_table
 from ._tables import number
 
 
@@ -50,16 +48,7 @@ def source(fit, digest: str, law) -> str:
     return "\n".join(lines) + "\n"
 
 
-def write(obj, path: Path, *, phenotype, kind, per_density) -> tuple:
-    fit, digest, law = resolve(obj, phenotype=phenotype, kind=kind, per_density=per_density)
-    return {path: source(fit, digest, law).encode()}, digest
-
-
-FORMAT = register(Format(
-    name="python",
-    suffixes=(".py",),
-    accepts=("FormulaFit", "SwitchingLaw"),
-    options=dict(OPTIONS),
-    write=write,
-    description="the closed-form fit as a Python function, with its error against the law",
-))
+FORMAT = code_format(
+    "python", (".py",), source,
+    "the closed-form fit as a Python function, with its error against the law",
+)
