@@ -32,12 +32,14 @@ def value_columns(state_values: np.ndarray) -> list:
     return [f"state_value_{j}" for j in range(state_values.shape[1])]
 
 
-def write(law, path: Path, *, study) -> tuple:
-    digest = sha256_of_law(law)
-    arrays = law_arrays(law)
+def long_table(law, tail_columns: list, tail_rows) -> tuple[list, str]:
+    """A long-format CSV of ``law``: density, state and state values lead every row.
+
+    ``tail_rows(k, y)`` yields the rest of each row at density index ``k`` and state ``y``.
+    Returns the column names and the text.
+    """
     values = np.asarray(law.state_values, dtype=float)
-    columns = ["density", "state", *value_columns(values), "phenotype", "probability",
-               "state_probability"]
+    columns = ["density", "state", *value_columns(values), *tail_columns]
     text = io.StringIO()
     writer = csv.writer(text, lineterminator="\n")
     writer.writerow(columns)
@@ -45,13 +47,24 @@ def write(law, path: Path, *, study) -> tuple:
     for k, rho in enumerate(law.densities):
         for y, state in enumerate(law.states):
             fixed = [number(rho), state_text(state), *(number(v) for v in per_state[y])]
-            for x, name in enumerate(law.phenotypes):
-                writer.writerow([*fixed, name, number(law.table[k, y, x]), number(law.state_probs[k, y])])
+            for tail in tail_rows(k, y):
+                writer.writerow([*fixed, *tail])
+    return columns, text.getvalue()
+
+
+def write(law, path: Path, *, study) -> tuple:
+    digest = sha256_of_law(law)
+    arrays = law_arrays(law)
+    columns, text = long_table(
+        law, ["phenotype", "probability", "state_probability"],
+        lambda k, y: ([name, number(law.table[k, y, x]), number(law.state_probs[k, y])]
+                      for x, name in enumerate(law.phenotypes)),
+    )
     sidecar = header(LAW_KIND, "csv", law_metadata(law, study, digest), law.phenotypes, arrays,
                      SIDECAR_ARRAYS)
     sidecar["csv"] = {"file": path.name, "columns": columns,
                       "rows": "one per density x state x phenotype"}
-    return {path: text.getvalue().encode(), sidecar_path(path): dumps(sidecar)}, digest
+    return {path: text.encode(), sidecar_path(path): dumps(sidecar)}, digest
 
 
 def rows(path: Path, columns: list) -> list:

@@ -9,8 +9,6 @@ diagonal holds the rest.
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from pathlib import Path
 
@@ -18,10 +16,10 @@ import numpy as np
 
 from .._errors import InputError
 from .._validate import as_positive, choice
-from ._csv import fill, indexed_rows, sidecar_path, value_columns
+from ._csv import fill, indexed_rows, long_table, sidecar_path
 from ._provenance import TIME_UNITS, UNITS, law_metadata, sha256_of_law
 from ._registry import REQUIRED, Format, register
-from ._tables import STEP_KIND, attributes, axes, dumps, from_json_values, header, law_arrays, number, state_text
+from ._tables import STEP_KIND, attributes, axes, dumps, from_json_values, header, law_arrays, number
 
 #: Largest allowed deviation of a row of per-step probabilities from summing to one.
 ROW_TOLERANCE = 1e-12
@@ -41,24 +39,18 @@ def write(law, path: Path, *, dt, tau, time_unit, study) -> tuple:
     if np.abs(sums - 1.0).max() > ROW_TOLERANCE or (steps < 0).any():
         raise InputError(f"per-step probabilities must be non-negative rows summing to 1 (dt={dt!r}, tau={tau!r})")
     digest = sha256_of_law(law)
-    values = np.asarray(law.state_values, dtype=float)
-    columns = ["density", "state", *value_columns(values), "from_phenotype", "to_phenotype", "probability"]
-    text = io.StringIO()
-    writer = csv.writer(text, lineterminator="\n")
-    writer.writerow(columns)
-    per_state = values.reshape(values.shape[0], -1)
-    for k, rho in enumerate(law.densities):
-        for y, state in enumerate(law.states):
-            fixed = [number(rho), state_text(state), *(number(v) for v in per_state[y])]
-            for i, source in enumerate(law.phenotypes):
-                for j, target in enumerate(law.phenotypes):
-                    writer.writerow([*fixed, source, target, number(steps[k, y, i, j])])
+    columns, text = long_table(
+        law, ["from_phenotype", "to_phenotype", "probability"],
+        lambda k, y: ([source, target, number(steps[k, y, i, j])]
+                      for i, source in enumerate(law.phenotypes)
+                      for j, target in enumerate(law.phenotypes)),
+    )
     sidecar = header(STEP_KIND, "csv", law_metadata(law, study, digest), law.phenotypes, law_arrays(law), AXES)
     sidecar["step"] = {"dt": dt, "tau": tau, "time_unit": time_unit,
                        "decision_probability": -math.expm1(-dt / tau)}
     sidecar["csv"] = {"file": path.name, "columns": columns,
                       "rows": "one per density x state x from_phenotype x to_phenotype"}
-    return {path: text.getvalue().encode(), sidecar_path(path): dumps(sidecar)}, digest
+    return {path: text.encode(), sidecar_path(path): dumps(sidecar)}, digest
 
 
 def step_dataset(arrays: dict, phenotypes, steps: np.ndarray, metadata: dict, step: dict):
