@@ -123,18 +123,27 @@ def solve_budget(
                 f"(got {fractions.size})"
             )
     extra = _check_constraints(constraints, u.shape)
-    if fractions is None and not extra:
-        greedy = _greedy(u, p)
-        if budget >= greedy.information_bits - 1e-12:
-            return greedy
     if method == "bisection":
         if fractions is not None or extra:
             raise InputError(
                 "`method='bisection'` handles the budget alone; use method='conic' with "
                 "`phenotype_fractions` or `constraints`"
             )
-        return _bisection(u, p, budget)
+        return budget_policy(u, p, budget)
+    if fractions is None and not extra:
+        greedy = _greedy(u, p)
+        if budget >= greedy.information_bits - 1e-12:
+            return greedy
     return _conic(u, p, budget, fractions, extra, solver)
+
+
+def budget_policy(u: np.ndarray, p: np.ndarray, budget: float) -> Policy:
+    """Min-information policy using ``budget`` bits (validated inputs): the state-by-state
+    best policy when the budget does not bind, else the beta found by bisection."""
+    greedy = _greedy(u, p)
+    if budget >= greedy.information_bits - 1e-12:
+        return greedy
+    return _bisection(u, p, budget)
 
 
 def _greedy(u: np.ndarray, p: np.ndarray) -> Policy:

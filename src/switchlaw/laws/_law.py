@@ -10,7 +10,7 @@ import numpy as np
 
 from .._errors import InputError
 from .._validate import as_array, as_distribution, as_nonnegative, as_positive, choice
-from ..decision._budget import _bisection, _greedy
+from ..decision._budget import budget_policy
 from ..decision._costs import beta_from_cost
 from ..decision._results import Policy
 from ..decision._solve import OBJECTIVES, max_entropy_policy, make_policy, solve_checked
@@ -310,8 +310,7 @@ def derive_law(
         elif beta_value is not None:
             policy = solve_checked(u, p, beta_value, start=start)
         else:
-            greedy = _greedy(u, p)
-            policy = greedy if setting >= greedy.information_bits - 1e-12 else _bisection(u, p, setting)
+            policy = budget_policy(u, p, setting)
         if objective == "min-information" and policy.status == "converged":
             start = policy.marginal
         policies.append(policy)
