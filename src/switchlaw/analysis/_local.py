@@ -24,8 +24,7 @@ from .._errors import InputError
 from .._jax import jax_float64
 from .._validate import as_nonnegative
 from ..decision._minimum_information import minimum_information_marginal
-from ..laws._law import _sensed
-from ..laws._payoffs import payoff_table
+from ..laws._law import _sensed, decision_problem
 from ..population._mean_field import MeanField
 from ..population._scalar import derivative
 
@@ -33,9 +32,8 @@ _SUPPORT = 1e-12
 
 
 def _sensed_table(model: MeanField, rho: float):
-    env = _sensed(model.environment, rho)
-    table, _ = payoff_table(model.payoff, env, model.phenotypes)
-    return env, env.sensed_payoff(table)
+    env, u, _ = decision_problem(model.payoff, model.environment, rho, model.phenotypes)
+    return env, u
 
 
 _COMPILED: dict = {}

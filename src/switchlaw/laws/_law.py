@@ -198,6 +198,14 @@ def _sensed(environment, rho: float) -> Environment:
     return as_environment(env, "environment")
 
 
+def decision_problem(payoff, environment, rho: float, phenotypes=None):
+    """What the cell faces at density ``rho``: the environment, the payoff over the states it
+    decides on (``E[u | sensed state]`` under a receptor) and the phenotype names."""
+    env = _sensed(environment, rho)
+    table, names = payoff_table(payoff, env, phenotypes, where=f" at density {rho:g}")
+    return env, env.sensed_payoff(table), names
+
+
 def _densities(values) -> np.ndarray:
     grid = as_array(values, "densities", ndim=1)
     if (grid < 0).any() or (grid > 1).any():
@@ -285,17 +293,14 @@ def derive_law(
     names = None
     start = None
     for rho in grid:
-        where = f" at density {rho:g}"
-        env = _sensed(environment, float(rho))
+        env, u, names = decision_problem(payoff, environment, float(rho), phenotypes)
         if first_env is None:
             first_env = env
         elif env.states.shape != first_env.states.shape or not np.array_equal(env.states, first_env.states):
             raise InputError(
-                f"`environment` must give the same states at every density; {where.strip()} "
+                f"`environment` must give the same states at every density; at density {rho:g} "
                 f"it has {env.states.size} states, not {first_env.states.size}"
             )
-        table, names = payoff_table(payoff, env, phenotypes, where=where)
-        u = env.sensed_payoff(table)
         p = env.probs
         state_probs.append(p)
         if objective == "max-entropy":

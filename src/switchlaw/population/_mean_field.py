@@ -26,8 +26,7 @@ from ..decision._costs import beta_from_cost
 from ..decision._solve import OBJECTIVES
 from ..decision._minimum_information import minimum_information_marginal
 from ..decision._solve import max_entropy_policy
-from ..laws._law import _sensed
-from ..laws._payoffs import payoff_table
+from ..laws._law import decision_problem
 from ._continuation import BifurcationDiagram, Branch, CriticalPoint, locate_fold, trace_branch
 from ._scalar import Equilibrium, derivative, roots_on_unit_interval
 
@@ -200,9 +199,7 @@ class MeanField:
 
     def _derive_fractions(self, rho: float, beta: float) -> np.ndarray:
         """``f_x(rho)``: for min-information the optimal marginal itself; else ``p @ q``."""
-        env = _sensed(self.environment, rho)
-        table, _ = payoff_table(self.payoff, env, self.phenotypes, where=f" at density {rho:g}")
-        u = env.sensed_payoff(table)
+        env, u, _ = decision_problem(self.payoff, self.environment, rho, self.phenotypes)
         if self.objective == "max-entropy":
             return env.probs @ max_entropy_policy(u, beta, None)
         r, record, _ = minimum_information_marginal(u, env.probs, beta, start=self._last_marginal)
