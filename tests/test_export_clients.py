@@ -73,3 +73,44 @@ def test_step_table_exports_at_any_step(law, ratio, tmp_path):
         for k, rho in enumerate(law.densities):
             np.testing.assert_allclose(steps[k], np.repeat(law.probs(rho)[:, None, :], 2, axis=1),
                                        rtol=0, atol=1e-15)
+
+
+# ---------------------------------------------------------------------------------- code
+@pytest.fixture(scope="module")
+def wild_hill(law):
+    # Invented parameters: a Hill curve from -0.2 to 1.3, which leaves [0, 1] at both ends.
+    import dataclasses
+
+    fit = sl.fit_formula(law, "divide", kind="hill")
+    return dataclasses.replace(fit, parameters={"low": np.array(-0.2), "high": np.array(1.3),
+                                                "half": np.array(2.0), "n": np.array(3.0)})
+
+
+SIGNALS = np.array([0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 6.0, 60.0])
+
+
+def test_python_code_stays_a_probability(wild_hill, tmp_path):
+    export(wild_hill, tmp_path / "fit.py")
+    namespace = {}
+    exec(compile((tmp_path / "fit.py").read_text(), "fit.py", "exec"), namespace)
+    got = np.array([namespace["q_divide"](float(v)) for v in SIGNALS])
+    # The Hill formula itself, written out here: low + (high - low) v^n / (half^n + v^n).
+    hill = -0.2 + 1.5 * SIGNALS**3 / (2.0**3 + SIGNALS**3)
+    assert hill.min() < 0 and hill.max() > 1  # the raw curve leaves [0, 1] ...
+    np.testing.assert_allclose(got, np.clip(hill, 0.0, 1.0), rtol=1e-14, atol=0)  # ... the export does not
+
+
+def test_c_header_is_guarded_and_stays_a_probability(wild_hill, tmp_path):
+    compiler = shutil.which("cc") or shutil.which("gcc")
+    if compiler is None:
+        pytest.skip("no C compiler (cc or gcc) on PATH to compile the exported header")
+    export(wild_hill, tmp_path / "fit.h")
+    calls = "\n".join(f'    printf("%.17g\\n", q_divide({float(v)!r}));' for v in SIGNALS)
+    # Included twice: without the include guard the second copy redefines q_divide.
+    (tmp_path / "main.c").write_text(
+        f'#include <stdio.h>\n#include "fit.h"\n#include "fit.h"\nint main(void) {{\n{calls}\n    return 0;\n}}\n')
+    subprocess.run([compiler, "-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-o", str(tmp_path / "run"),
+                    str(tmp_path / "main.c"), "-lm"], check=True, capture_output=True)
+    out = subprocess.run([str(tmp_path / "run")], check=True, capture_output=True, text=True).stdout.split()
+    hill = -0.2 + 1.5 * SIGNALS**3 / (2.0**3 + SIGNALS**3)
+    np.testing.assert_allclose(np.array(out, dtype=float), np.clip(hill, 0.0, 1.0), rtol=1e-14, atol=0)
