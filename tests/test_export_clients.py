@@ -114,3 +114,93 @@ def test_c_header_is_guarded_and_stays_a_probability(wild_hill, tmp_path):
     out = subprocess.run([str(tmp_path / "run")], check=True, capture_output=True, text=True).stdout.split()
     hill = -0.2 + 1.5 * SIGNALS**3 / (2.0**3 + SIGNALS**3)
     np.testing.assert_allclose(np.array(out, dtype=float), np.clip(hill, 0.0, 1.0), rtol=1e-14, atol=0)
+
+
+# ---------------------------------------------------------------------------- SBML, any grid
+RATES = {"division": [1.0, 0.0], "death": [0.2, 0.2], "crowding": [0.1, 0.0]}
+GRID_SIZES = [2, 21, 34, 101, pytest.param(1001, marks=pytest.mark.slow)]
+
+
+def mean_field(tau):
+    return sl.MeanField(GROW_WHEN_CROWDED, hexagonal, tau=tau, objective="max-entropy", **RATES)
+
+
+class Interpolated(sl.MeanField):
+    """switchlaw's own mean-field model with f_x(rho) the linear interpolant of a law's grid
+    fractions (the model the SBML file states), integrated by MeanField.trajectory."""
+
+    def __init__(self, law, **kwargs):
+        super().__init__(GROW_WHEN_CROWDED, hexagonal, objective="max-entropy", **RATES, **kwargs)
+        self.grid = law.densities
+        self.table = np.einsum("ky,kyx->kx", law.state_probs, law.table)
+
+    def _derive_fractions(self, rho, beta):
+        return np.array([np.interp(rho, self.grid, self.table[:, x]) for x in range(self.table.shape[1])])
+
+
+def grid_law(points):
+    return sl.derive_law(GROW_WHEN_CROWDED, hexagonal, densities=np.linspace(0, 1, points), beta=4.0,
+                         objective="max-entropy")
+
+
+def reference(law, tau):
+    run = Interpolated(law, tau=tau).trajectory(4.0, 0.5, 40.0, points=201, rtol=1e-10)
+    return run.times, (run.density[:, None] if tau is None else run.compartments)
+
+
+def copasi_run(path, species):
+    import basico
+
+    model = basico.load_model(str(path))
+    try:
+        frame = basico.run_time_course(duration=40.0, intervals=200, method="deterministic", r_tol=1e-10,
+                                       a_tol=1e-12, use_sbml_id=True, model=model)
+    finally:
+        basico.remove_datamodel(model)
+    return frame.index.to_numpy(), frame[species].to_numpy()
+
+
+def roadrunner_run(path, species):
+    import roadrunner
+
+    runner = roadrunner.RoadRunner(str(path))
+    runner.integrator.relative_tolerance = 1e-10
+    runner.integrator.absolute_tolerance = 1e-12
+    runner.timeCourseSelections = ["time"] + species
+    result = np.asarray(runner.simulate(0.0, 40.0, 201))
+    return result[:, 0], result[:, 1:]
+
+
+@pytest.mark.parametrize("points", GRID_SIZES)
+@pytest.mark.parametrize("tau", [None, 2.0])
+def test_copasi_and_roadrunner_read_every_grid_size(points, tau, tmp_path):
+    # COPASI (through copasi-basico) and libroadrunner integrate the file; both must match
+    # switchlaw's own integration of the same interpolated model to 1e-6 relative. Before
+    # the balanced encoding COPASI dropped the switching rule at 34 points or more.
+    law = grid_law(points)
+    export(mean_field(tau), tmp_path / "model.xml", law=law, initial=0.5)
+    times, expected = reference(law, tau)
+    species = ["rho"] if tau is None else ["cells_divide", "cells_move"]
+    for client in (copasi_run, roadrunner_run):
+        got_times, got = client(tmp_path / "model.xml", species)
+        np.testing.assert_allclose(got_times, times, rtol=1e-12, atol=1e-12)
+        relative = np.abs(got - expected) / np.abs(expected)
+        assert relative.max() <= 1e-6, (client.__name__, relative.max())
+    if tau is not None:
+        # The switching rule acts: the phenotype split moves away from its start.
+        assert abs(expected[-1, 0] / expected[-1].sum() - expected[0, 0] / expected[0].sum()) > 0.05
+
+
+@pytest.mark.parametrize("points", [2, 21, 34, 101, 1001])
+def test_piecewise_depth_grows_as_log2_of_the_grid(points, tmp_path):
+    import libsbml
+
+    from switchlaw.exporters._sbml import piecewise_depth
+
+    export(mean_field(2.0), tmp_path / "model.xml", law=grid_law(points), initial=0.5)
+    model = libsbml.readSBMLFromString((tmp_path / "model.xml").read_text()).getModel()
+    for name in ("fraction_divide", "fraction_move"):
+        depth = piecewise_depth(model.getAssignmentRuleByVariable(name).getMath())
+        # A balanced binary search over n - 1 intervals needs ceil(log2(n - 1)) comparisons
+        # (Knuth, TAOCP vol. 3, §6.2.1); a chain would need n - 2.
+        assert depth == math.ceil(math.log2(points - 1))

@@ -12,7 +12,8 @@ the file as it is. In the fast-switching limit (``tau=None``) the one species is
 density and ``rho' = rho g(rho)`` is split into a birth and a death reaction.
 
 ``f_x(rho)`` is written either as the exact piecewise-linear interpolant of the law's
-fractions on its density grid (one piece per grid interval) or, for two phenotypes, as a
+fractions on its density grid (one piece per grid interval, selected by a balanced binary
+search so the expression depth grows as ``log2`` of the grid size) or, for two phenotypes, as a
 closed form in ``rho`` fitted to them when its largest error is within ``tolerance``.
 
 Every quantity carries units: densities are dimensionless amounts in a compartment of size
@@ -112,15 +113,34 @@ def _math(formula: str):
 
 
 def _piecewise_linear(grid: np.ndarray, values: np.ndarray, literal) -> str:
-    """``f(rho)``: linear on each grid interval, equal to ``values`` at the grid points."""
-    pieces = []
-    last = grid.size - 2
-    for i in range(grid.size - 1):
+    """``f(rho)``: linear on each grid interval, equal to ``values`` at the grid points.
+
+    The intervals are chosen by a balanced binary search, ``piecewise(left, rho < split,
+    right)`` nested about the middle grid point, so the expression is ``ceil(log2(n - 1))``
+    piecewise levels deep for ``n`` grid points rather than one long chain: clients that
+    compile the expression tree recursively (COPASI) read every grid size.
+    """
+
+    def piece(i: int) -> str:
         slope = (f"({literal(values[i + 1])} - {literal(values[i])}) / "
                  f"({literal(grid[i + 1])} - {literal(grid[i])})")
-        piece = f"{literal(values[i])} + {slope} * (rho - {literal(grid[i])})"
-        pieces.append(piece if i == last else f"{piece}, rho < {literal(grid[i + 1])}")
-    return f"piecewise({', '.join(pieces)})" if len(pieces) > 1 else pieces[0]
+        return f"{literal(values[i])} + {slope} * (rho - {literal(grid[i])})"
+
+    def search(first: int, stop: int) -> str:
+        if stop - first == 1:
+            return piece(first)
+        middle = (first + stop) // 2
+        return f"piecewise({search(first, middle)}, rho < {literal(grid[middle])}, {search(middle, stop)})"
+
+    return search(0, grid.size - 1)
+
+
+def piecewise_depth(node) -> int:
+    """Largest number of nested ``piecewise`` nodes on a path of a libsbml math tree."""
+    import libsbml
+
+    below = max((piecewise_depth(node.getChild(i)) for i in range(node.getNumChildren())), default=0)
+    return below + (node.getType() == libsbml.AST_FUNCTION_PIECEWISE)
 
 
 def _closed_form(law, fractions: np.ndarray, kind: str, tolerance: float):
