@@ -204,3 +204,125 @@ def test_piecewise_depth_grows_as_log2_of_the_grid(points, tmp_path):
         # A balanced binary search over n - 1 intervals needs ceil(log2(n - 1)) comparisons
         # (Knuth, TAOCP vol. 3, §6.2.1); a chain would need n - 2.
         assert depth == math.ceil(math.log2(points - 1))
+
+
+# ----------------------------------------------------------------- SBML, count variant
+def count_law():
+    # 21 grid points and 20 cells at density 1: every count n sits on a grid density n / 20,
+    # where the SBML interpolant and switchlaw's own fractions agree exactly.
+    return grid_law(21)
+
+
+def count_model(tau):
+    return sl.MeanField(GROW_WHEN_CROWDED, hexagonal, tau=tau, objective="max-entropy",
+                        division=[1.0, 0.0], death=[0.2, 0.2], crowding=[0.0, 0.0])
+
+
+@pytest.mark.parametrize("tau", [None, 2.0])
+def test_count_variant_is_the_density_model_times_the_system_size(tau, tmp_path):
+    # With counts n = N rho the deterministic rates are N times those of the density model
+    # (van Kampen, Stochastic Processes in Physics and Chemistry, ch. X, system-size
+    # expansion): libroadrunner's ODE run of the count file over N equals switchlaw's own
+    # integration of the density model.
+    law, size = grid_law(34), 500
+    initial = 250 if tau is None else [150, 100]
+    export(mean_field(tau), tmp_path / "counts.xml", law=law, initial=initial, variant="counts",
+           system_size=size, time_unit="hour")
+    text = (tmp_path / "counts.xml").read_text()
+    assert "sbml:units" not in text and "<piecewise>" not in text and "listOfRules" not in text
+    species = ["cells"] if tau is None else ["cells_divide", "cells_move"]
+    times, got = roadrunner_run(tmp_path / "counts.xml", species)
+    start = 0.5 if tau is None else np.array([0.3, 0.2])
+    run = Interpolated(law, tau=tau).trajectory(4.0, start, 40.0, points=201, rtol=1e-10)
+    expected = run.density[:, None] if tau is None else run.compartments
+    np.testing.assert_allclose(times, run.times, rtol=1e-12)
+    assert (np.abs(got / size - expected) / expected).max() <= 1e-6
+
+
+@pytest.mark.parametrize("tau", [None, 2.0])
+def test_count_variant_propensities_are_non_negative_everywhere(tau, tmp_path):
+    import roadrunner
+
+    size = 20
+    export(count_model(tau), tmp_path / "counts.xml", law=count_law(), initial=10 if tau is None else [5, 5],
+           variant="counts", system_size=size)
+    runner = roadrunner.RoadRunner(str(tmp_path / "counts.xml"))
+    reactions = runner.model.getReactionIds()
+    rates = []
+    states = [(n,) for n in range(size + 1)] if tau is None else \
+        [(a, b) for a in range(size + 1) for b in range(size + 1 - a)]
+    for state in states:
+        runner.model.setFloatingSpeciesAmounts(list(map(float, state)))
+        rates.append(runner.model.getReactionRates())
+    rates = np.array(rates)
+    assert rates.shape == (len(states), len(reactions))
+    assert (rates >= 0).all()
+    # No division once the population is at its size, no event at all in an empty one.
+    full = [k for k, state in enumerate(states) if sum(state) == size]
+    births = [k for k, name in enumerate(reactions) if name in ("birth", "division_of_divide", "division_of_move")]
+    assert (rates[np.ix_(full, births)] == 0).all() and (rates[states.index((0,) * len(states[0]))] == 0).all()
+
+
+def switchlaw_counts(tau, replicates, t_end):
+    model = sl.BirthDeathSwitching(division=[1.0, 0.0], death=[0.2, 0.2], capacity=20, law=count_law(), tau=tau)
+    return model.simulate([5, 5], t_end=t_end, times=[0.0, t_end], replicates=replicates, seed=20261203).counts[:, -1]
+
+
+def within(samples, reference, z=3.5):
+    """Means of two independent samples agree within z combined standard errors."""
+    error = np.sqrt(samples.var(axis=0, ddof=1) / len(samples) + reference.var(axis=0, ddof=1) / len(reference))
+    return np.abs(samples.mean(axis=0) - reference.mean(axis=0)) <= z * error
+
+
+def test_gillespy2_ssa_of_the_count_variant_matches_switchlaw(tmp_path):
+    import gillespy2
+
+    export(count_model(2.0), tmp_path / "counts.xml", law=count_law(), initial=[5, 5], variant="counts",
+           system_size=20)
+    model, errors = gillespy2.import_SBML(str(tmp_path / "counts.xml"))
+    assert errors == []
+    t_end, replicates = 4.0, 400
+    model.timespan(np.linspace(0.0, t_end, 5))
+    results = model.run(solver=gillespy2.NumPySSASolver, number_of_trajectories=replicates, seed=11)
+    theirs = np.array([[r["cells_divide"][-1], r["cells_move"][-1]] for r in results])
+    ours = switchlaw_counts(2.0, replicates, t_end)
+    assert within(theirs, ours).all(), (theirs.mean(axis=0), ours.mean(axis=0))
+    # Cells do switch: without switching no "move" cell would ever divide, and the split of
+    # phenotypes moves away from 5:5 (the same in both simulators).
+    assert abs(theirs[:, 0].mean() - theirs[:, 1].mean()) > 1.0
+
+
+def test_roadrunner_gillespie_runs_the_count_variant(tmp_path):
+    import roadrunner
+
+    export(count_model(2.0), tmp_path / "counts.xml", law=count_law(), initial=[5, 5], variant="counts",
+           system_size=20)
+    runner = roadrunner.RoadRunner(str(tmp_path / "counts.xml"))
+    runner.setIntegrator("gillespie")
+    runner.integrator.seed = 5
+    runner.timeCourseSelections = ["time", "cells_divide", "cells_move"]
+    t_end, replicates = 4.0, 400
+    finals = []
+    for _ in range(replicates):
+        runner.reset()
+        finals.append(np.asarray(runner.simulate(0.0, t_end, 5))[-1, 1:])
+    theirs = np.array(finals)
+    assert (theirs == np.round(theirs)).all() and (theirs >= 0).all() and (theirs.sum(axis=1) <= 20).all()
+    assert within(theirs, switchlaw_counts(2.0, replicates, t_end)).all()
+
+
+def test_count_variant_input_rules(tmp_path):
+    law = count_law()
+    with pytest.raises(sl.InputError, match="variant='counts' needs `system_size`"):
+        export(count_model(2.0), tmp_path / "c.xml", law=law, initial=[5, 5], variant="counts")
+    with pytest.raises(sl.InputError, match="`system_size` applies only with variant='counts'"):
+        export(count_model(2.0), tmp_path / "c.xml", law=law, initial=0.5, system_size=20)
+    with pytest.raises(sl.InputError, match="`system_size` must be an integer >= 1 \\(got 2.5\\)"):
+        export(count_model(2.0), tmp_path / "c.xml", law=law, initial=[1, 1], variant="counts", system_size=2.5)
+    with pytest.raises(sl.InputError, match="`initial` must be 2 cell counts .* at most `system_size`=20"):
+        export(count_model(2.0), tmp_path / "c.xml", law=law, initial=[15, 15], variant="counts", system_size=20)
+    with pytest.raises(sl.InputError, match="`initial` must be one cell count"):
+        export(count_model(None), tmp_path / "c.xml", law=law, initial=0.5, variant="counts", system_size=20)
+    with pytest.raises(sl.InputError, match="`variant` must be one of 'density', 'counts'"):
+        export(count_model(None), tmp_path / "c.xml", law=law, initial=5, variant="cells", system_size=20)
+    assert list(tmp_path.iterdir()) == []
