@@ -326,3 +326,72 @@ def test_count_variant_input_rules(tmp_path):
     with pytest.raises(sl.InputError, match="`variant` must be one of 'density', 'counts'"):
         export(count_model(None), tmp_path / "c.xml", law=law, initial=5, variant="cells", system_size=20)
     assert list(tmp_path.iterdir()) == []
+
+
+# ------------------------------------------------------------------------- netCDF (CF)
+def cf_problems(path):
+    """What a CF reader objects to: no Conventions, or a units string UDUNITS-2 (through
+    cf-units, the CF community's UDUNITS-2 binding) cannot parse."""
+    import cf_units
+    import h5py
+
+    def text(value):
+        return value.decode() if isinstance(value, bytes) else str(value)
+
+    problems = []
+    with h5py.File(path, "r") as stored:
+        if not text(stored.attrs.get("Conventions", "")).startswith("CF-"):
+            problems.append("no Conventions attribute beginning CF-")
+
+        def visit(name, item):
+            if "units" in item.attrs:
+                try:
+                    cf_units.Unit(text(item.attrs["units"]))
+                except ValueError:
+                    problems.append(f"{name}: units {text(item.attrs['units'])!r} do not parse")
+
+        stored.visititems(visit)
+    return problems
+
+
+def test_law_netcdf_has_cf_conventions_and_udunits(law, tmp_path):
+    import xarray as xr
+
+    export(law, tmp_path / "law.nc")
+    assert cf_problems(tmp_path / "law.nc") == []
+    with xr.open_dataset(tmp_path / "law.nc", engine="h5netcdf") as stored:
+        assert stored.attrs["Conventions"] == "CF-1.10"
+        assert stored["information_bits"].attrs["units"] == "1" and "bit" in stored["information_bits"].attrs["long_name"]
+        assert "units" not in stored["beta"].attrs and "nats per payoff unit" in stored["beta"].attrs["long_name"]
+        assert "units" not in stored["expected_payoff"].attrs
+
+
+def test_scan_netcdf_has_cf_conventions_and_round_trips(tmp_path):
+    import cf_units
+    import xarray as xr
+
+    from switchlaw import analysis as sa
+
+    study = sl.MeanField(GROW_WHEN_CROWDED, hexagonal, division=[1.0, 0.0], death=[0.2, 0.2],
+                         objective="max-entropy")
+    regimes = sa.scan(sa.RegimeSummary(study, points=41), {"beta": [1.0, 6.0]}, progress=False)
+    laws = sa.scan(sa.LawSummary(study, densities=[0.2, 0.6]), {"beta": [1.0, 6.0]}, progress=False)
+    for name, ds in {"regimes": regimes, "laws": laws}.items():
+        sa.save_scan(ds, tmp_path / f"{name}.nc")
+        assert cf_problems(tmp_path / f"{name}.nc") == []
+        xr.testing.assert_identical(sa.load_scan(tmp_path / f"{name}.nc"), ds)
+    with xr.open_dataset(tmp_path / "regimes.nc", engine="h5netcdf") as stored:
+        assert "units" not in stored["low_density_growth"].attrs  # no declared time unit
+        assert "per unit time" in stored["low_density_growth"].attrs["long_name"]
+    with xr.open_dataset(tmp_path / "laws.nc", engine="h5netcdf") as stored:
+        assert stored["information"].attrs["units"] == "1" and "bit" in stored["information"].attrs["long_name"]
+    # With a declared time unit, rates are UDUNITS "h-1": 1 per hour is 1/3600 per second.
+    sa.save_scan(regimes, tmp_path / "hours.nc", time_unit="hour")
+    assert cf_problems(tmp_path / "hours.nc") == []
+    with xr.open_dataset(tmp_path / "hours.nc", engine="h5netcdf") as stored:
+        unit = cf_units.Unit(stored["low_density_growth"].attrs["units"])
+        assert unit.convert(1.0, cf_units.Unit("s-1")) == pytest.approx(1 / 3600, rel=1e-12)
+        assert stored.attrs["time_unit"] == "hour"
+    xr.testing.assert_identical(sa.load_scan(tmp_path / "hours.nc"), regimes)
+    with pytest.raises(sl.InputError, match="`time_unit` must be one of"):
+        sa.save_scan(regimes, tmp_path / "weeks.nc", time_unit="week")
