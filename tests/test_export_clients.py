@@ -7,6 +7,7 @@ import json
 import math
 import shutil
 import subprocess
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -395,3 +396,42 @@ def test_scan_netcdf_has_cf_conventions_and_round_trips(tmp_path):
     xr.testing.assert_identical(sa.load_scan(tmp_path / "hours.nc"), regimes)
     with pytest.raises(sl.InputError, match="`time_unit` must be one of"):
         sa.save_scan(regimes, tmp_path / "weeks.nc", time_unit="week")
+
+
+# ------------------------------------------------------------------- time unit, end to end
+def test_study_time_unit_reaches_every_export(tmp_path):
+    import cf_units
+    import libsbml
+    import xarray as xr
+
+    from switchlaw.cli._main import main
+
+    colony = (Path(sl.__file__).parent / "cli" / "studies" / "colony.toml").read_text(encoding="utf-8")
+    # The built-in invented colony study, smaller, with its rates declared per hour.
+    text = (colony.replace('phenotypes = ["divide", "roam"]', 'phenotypes = ["divide", "roam"]\ntime_unit = "hour"')
+            .replace("points = 101", "points = 21").replace("points = 60", "points = 12")
+            .replace("points = 25", "points = 4").replace("beta_points = 80", "beta_points = 12"))
+    assert 'time_unit = "hour"' in text
+    (tmp_path / "hours.toml").write_text(text, encoding="utf-8")
+    out = tmp_path / "run"
+    assert main(["run", str(tmp_path / "hours.toml"), "--out", str(out), "--quiet"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["study"]["time_unit"] == "hour"
+    assert json.loads((out / "law.csv.json").read_text())["metadata"]["study"]["time_unit"] == "hour"
+    document = libsbml.readSBMLFromString((out / "model.sbml").read_text())
+    model = document.getModel()
+    assert model.getTimeUnits() == "hour"
+    hour = model.getUnitDefinition("hour").getUnit(0)
+    assert hour.getKind() == libsbml.UNIT_KIND_SECOND and hour.getMultiplier() == 3600.0
+    for category in (libsbml.LIBSBML_CAT_UNITS_CONSISTENCY, libsbml.LIBSBML_CAT_MODELING_PRACTICE):
+        document.setConsistencyChecks(category, True)
+    assert document.checkConsistency() == 0  # no errors and no warnings, units included
+    netcdf = sorted(out.glob("*.nc"))
+    assert [p.name for p in netcdf] == ["law.nc", "scan.nc"]
+    for path in netcdf:
+        assert cf_problems(path) == []  # Conventions begins CF-; every units string parses
+    with xr.open_dataset(out / "scan.nc", engine="h5netcdf") as scan:
+        assert scan.attrs["time_unit"] == "hour"
+        rates = [name for name, v in scan.variables.items() if v.attrs.get("units") == "h-1"]
+        assert rates  # e.g. the growth rate of a rare population, per hour
+        assert cf_units.Unit("h-1").convert(1.0, cf_units.Unit("s-1")) == pytest.approx(1 / 3600)
