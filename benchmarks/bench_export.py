@@ -9,6 +9,8 @@ x 2 phenotypes. Side by side in one run, medians of several repeats, printed as 
 3. ``read_table("law.csv")`` (with the hash check) against ``pandas.read_csv``.
 4. SBML: writing the exact piecewise-linear table and loading it in libroadrunner, against the
    same model with the logistic closed form (what the exact table costs a simulator).
+5. SBML at 1001 grid points (finite tau): export plus loading in COPASI (copasi-basico)
+   against export plus loading in libroadrunner, and export alone against the latter.
 
 Run:  python benchmarks/bench_export.py [--repeats 5]
 """
@@ -53,6 +55,7 @@ def long_frame(law):
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeats", type=int, default=5)
+    parser.add_argument("--sbml-repeats", type=int, default=3, help="repeats of the 1001-point SBML rows")
     args = parser.parse_args()
 
     payoff = {"divide": sl.Linear(1 / 8, 0.0), "move": sl.Linear(-1 / 8, 1.0)}
@@ -94,6 +97,29 @@ def main() -> None:
     ours = median_seconds(sbml("table"), args.repeats)
     theirs = median_seconds(sbml("logistic"), args.repeats)
     rows.append(("SBML write+load+simulate (101-point table vs logistic)", ours, theirs))
+
+    # 1001-point table: export plus loading in COPASI (copasi-basico) against export plus
+    # loading the same file in libroadrunner (the client switchlaw was first checked with).
+    import basico
+
+    big_law = sl.derive_law(payoff, moore, densities=np.linspace(0, 1, 1001), beta=3.0, objective="max-entropy")
+    finite = sl.MeanField(payoff, moore, division=[1.0, 0.0], death=[0.2, 0.2], objective="max-entropy", tau=2.0)
+    big = folder / "big.xml"
+    write_only = median_seconds(lambda: export(finite, big, law=big_law, initial=0.5, overwrite=True),
+                                args.sbml_repeats)
+
+    def copasi():
+        export(finite, big, law=big_law, initial=0.5, overwrite=True)
+        basico.remove_datamodel(basico.load_model(str(big)))
+
+    def libroadrunner():
+        export(finite, big, law=big_law, initial=0.5, overwrite=True)
+        roadrunner.RoadRunner(str(big))
+
+    ours = median_seconds(copasi, args.sbml_repeats)
+    theirs = median_seconds(libroadrunner, args.sbml_repeats)
+    rows.append(("SBML 1001 points: export + COPASI load vs + roadrunner", ours, theirs))
+    rows.append(("SBML 1001 points: export alone vs export + roadrunner", write_only, theirs))
 
     print(f"{'task':58s} {'switchlaw s':>12s} {'baseline s':>11s} {'ratio':>7s}")
     for name, a, b in rows:

@@ -188,7 +188,7 @@ def summary(results: Results) -> dict:
         "switchlaw_version": sl.__version__,
         "caution": CAUTION,
         "study": {"title": results.study.study.title, "notes": results.study.study.notes,
-                  "seed": results.study.study.seed},
+                  "seed": results.study.study.seed, "time_unit": results.study.study.time_unit},
         "law": {
             "objective": law.objective,
             "route": law.route,
@@ -287,6 +287,9 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
     written = ["summary.json", "study.toml"]
     formats = results.study.exports.formats
     study_record = {"title": results.study.study.title, "toml": results.text}
+    time_unit = results.study.study.time_unit
+    if time_unit is not None:
+        study_record["time_unit"] = time_unit
     if "csv" in formats:
         done = sl.export(results.law, folder / "law.csv", study=study_record)
         written += [Path(p).name for p in done.paths]
@@ -294,11 +297,12 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
         sl.export(results.law, folder / "law.nc", study=study_record)
         written.append("law.nc")
         if results.scan is not None:
-            sl.save_scan(results.scan, folder / "scan.nc")
+            sl.save_scan(results.scan, folder / "scan.nc", time_unit=time_unit)
             written.append("scan.nc")
     if "sbml" in formats and results.model is not None:
         sl.export(results.model, folder / "model.sbml", format="sbml", law=results.law,
-                  initial=results.study.population.initial_density, study=study_record)
+                  initial=results.study.population.initial_density, study=study_record,
+                  time_unit=time_unit or "second")
         written.append("model.sbml")
     (folder / "report.html").write_text(render(results, data, made), encoding="utf-8")
     written.append("report.html")

@@ -40,6 +40,8 @@ class Meta(_Strict):
     notes: str = ""
     seed: int = Field(default=0, ge=0)
     phenotypes: list[str] = Field(min_length=1)
+    #: The time unit of every rate and timescale in the study (exports declare it).
+    time_unit: Literal["second", "minute", "hour", "day"] | None = None
 
 
 class Receptor(_Strict):

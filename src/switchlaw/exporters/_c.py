@@ -1,4 +1,5 @@
-"""Format ``c``: the closed-form fit as a C99 function (sympy's C printer)."""
+"""Format ``c``: the closed-form fit as a C99 function (sympy's C printer), with an include
+guard so the file can serve as a header."""
 
 from __future__ import annotations
 
@@ -27,7 +28,8 @@ def source(fit, digest: str, law) -> str:
     values = parameter_table(fit)
     count = len(names(fit))
     lines = [f"/* {line.replace('*/', '* /')} */" for line in header(fit, digest, law)]
-    lines += ["#include <math.h>", ""]
+    guard = f"SWITCHLAW_{function.upper()}_H"
+    lines += [f"#ifndef {guard}", f"#define {guard}", "", "#include <math.h>", ""]
     if fit.per_density:
         k = fit.densities.size
         lines.append(f"static const double {function}_densities[{k}] = {_braced(fit.densities)};")
@@ -41,7 +43,7 @@ def source(fit, digest: str, law) -> str:
         signature, row = f"double {function}(double v)", f"{function}_parameters"
     lines += ["", f"/* Probability of adopting {fit.phenotype} at signal value v. */", signature, "{"]
     lines += [f"    const double {name} = {row}[{j}];" for j, name in enumerate(names(fit))]
-    lines += [f"    return {_printer().doprint(expression(fit))};", "}"]
+    lines += [f"    return {_printer().doprint(expression(fit))};", "}", "", f"#endif /* {guard} */"]
     return "\n".join(lines) + "\n"
 
 

@@ -1,5 +1,8 @@
 """What the code formats (``python``, ``c``, ``latex``) share: the fit to export, its sympy
-expression, and the header lines stating its provenance and its error against the law."""
+expression, and the header lines stating its provenance and its error against the law.
+
+Every exported expression stays in [0, 1]: the logistic form cannot leave it, and the Hill
+form is written as ``min(1, max(0, hill))``."""
 
 from __future__ import annotations
 
@@ -56,7 +59,10 @@ def expression(fit, symbols: dict | None = None):
     p = {name: sympy.Symbol((symbols or {}).get(name, name), real=True) for name in names(fit)}
     if fit.kind == "logistic":
         return 1 / (1 + sympy.exp(-(p["a"] + p["b"] * v)))
-    return p["low"] + (p["high"] - p["low"]) * v ** p["n"] / (p["half"] ** p["n"] + v ** p["n"])
+    # A fitted Hill curve can leave [0, 1] away from the fitted range (low < 0, high > 1):
+    # the exported probability is clipped to [0, 1], so no caller gets an impossible value.
+    hill = p["low"] + (p["high"] - p["low"]) * v ** p["n"] / (p["half"] ** p["n"] + v ** p["n"])
+    return sympy.Min(sympy.Float(1.0), sympy.Max(sympy.Float(0.0), hill, evaluate=False), evaluate=False)
 
 
 def identifier(name: str) -> str:
@@ -75,7 +81,7 @@ def header(fit, digest: str, law) -> list:
         f"inputs sha256: {digest}",
     ]
     if fit.kind == "hill":
-        lines.append("the signal v must be >= 0")
+        lines.append("the signal v must be >= 0; the Hill curve is clipped to [0, 1]")
     if law is not None and not np.all(law.converged):
         failed = int(np.sum(~np.asarray(law.converged, dtype=bool)))
         lines.insert(0, f"WARNING: the law did NOT converge at {failed} of {law.densities.size} "

@@ -8,6 +8,7 @@ import json
 import numpy as np
 
 from .._errors import InputError
+from .._units import TIME_SYMBOLS, TIME_UNITS  # noqa: F401  (re-exported for the formats)
 
 #: Arrays of a law that enter its hash, in this order (name in the file, attribute of the law).
 LAW_ARRAYS = (
@@ -33,6 +34,18 @@ UNITS = {
     "information_bits": "bit",
     "expected_payoff": "payoff unit",
     "converged": "1",
+    "step_probability": "1",
+}
+
+#: The same quantities in netCDF (CF conventions): ``units`` only where UDUNITS-2 parses it;
+#: information is a number (``"1"``) whose unit, bit, the long name states; quantities in the
+#: user's own units (payoff, signal) have no ``units`` and state them in the long name.
+CF_UNITS = {
+    "density": "1",
+    "probability": "1",
+    "state_probability": "1",
+    "fraction": "1",
+    "information_bits": "1",
     "step_probability": "1",
 }
 
@@ -116,6 +129,3 @@ def law_metadata(law, study, digest: str) -> dict:
         "study": json.loads(study_text(study)),
         "note": note + " " + CAUTION,
     }
-
-#: Time units a model or step table can declare, in seconds.
-TIME_UNITS = {"second": 1.0, "minute": 60.0, "hour": 3600.0, "day": 86400.0}

@@ -220,8 +220,10 @@ def export(obj, path, *, format=None, overwrite=False, allow_unconverged=False, 
         Options of the chosen format (an unknown one is an error that lists the valid ones):
         ``study`` (tables, SBML): a JSON-serialisable description of the study, stored
         verbatim; ``dt``, ``tau``, ``time_unit`` (step tables); ``law``, ``initial``,
-        ``time_unit``, ``fractions``, ``tolerance`` (SBML); ``phenotype``, ``kind``,
-        ``per_density`` (code, when exporting a law rather than a fit).
+        ``time_unit``, ``fractions``, ``tolerance``, ``variant`` (``"density"`` for ODE
+        clients, ``"counts"`` for stochastic ones) and ``system_size`` (cells at density 1,
+        with ``variant="counts"``) (SBML); ``phenotype``, ``kind``, ``per_density`` (code,
+        when exporting a law rather than a fit).
 
     Returns
     -------

@@ -7,12 +7,20 @@ With a finite decision timescale ``tau`` there is one species per phenotype and 
 
 which equals ``a_x rho_x + (rho f_x - rho_x) / tau`` (domain notes §4) because the fractions
 ``f_x(rho)`` sum to one. Division, death and every switch ``i -> j`` are separate
-irreversible reactions with non-negative rates, so stochastic (Gillespie) simulators can run
-the file as it is. In the fast-switching limit (``tau=None``) the one species is the total
-density and ``rho' = rho g(rho)`` is split into a birth and a death reaction.
+irreversible reactions with non-negative rates. In the fast-switching limit (``tau=None``)
+the one species is the total density and ``rho' = rho g(rho)`` is split into a birth and a
+death reaction.
+
+That is the ``density`` variant, for ODE clients. The ``counts`` variant, for stochastic
+(Gillespie) clients, has cell counts ``n_x`` as species in a population of ``system_size = N``
+cells at density 1: each propensity is ``N`` times the rate above with ``rho = sum n / N``
+written out inside it (no rules), the interpolant is written with hinges ``(r + abs(r)) / 2``
+instead of comparisons, and numbers are named dimensionless constants (some stochastic
+clients parse neither relational operators nor literals with units).
 
 ``f_x(rho)`` is written either as the exact piecewise-linear interpolant of the law's
-fractions on its density grid (one piece per grid interval) or, for two phenotypes, as a
+fractions on its density grid (one piece per grid interval, selected by a balanced binary
+search so the expression depth grows as ``log2`` of the grid size) or, for two phenotypes, as a
 closed form in ``rho`` fitted to them when its largest error is within ``tolerance``.
 
 Every quantity carries units: densities are dimensionless amounts in a compartment of size
@@ -37,6 +45,8 @@ from ._provenance import TIME_UNITS, law_metadata, sha256_of_law, study_text
 from ._registry import REQUIRED, Format, register
 
 FRACTIONS = ("table", "logistic", "hill")
+#: ``density``: species are densities (ODE clients); ``counts``: cell counts (stochastic clients).
+VARIANTS = ("density", "counts")
 NAMESPACE = "urn:switchlaw:provenance:1"
 #: Placeholder literals are SENTINEL + index: 15-digit integers libsbml prints exactly.
 SENTINEL = 987_654_321_000_000
@@ -90,8 +100,9 @@ def _identifiers(names) -> list:
     return out
 
 
-def _math(formula: str):
-    """Parse an L3 formula (``log`` read as natural log) and give every literal units."""
+def _math(formula: str, literal_units: bool = True):
+    """Parse an L3 formula (``log`` read as natural log); give every literal units unless
+    ``literal_units`` is false (the count variant, for clients that cannot parse them)."""
     import libsbml
 
     settings = libsbml.L3ParserSettings()
@@ -103,7 +114,8 @@ def _math(formula: str):
     def units(ast):
         if ast.isNumber():
             _ok(ast.setValue(float(ast.getReal())), "set a literal")
-            _ok(ast.setUnits("dimensionless"), "set the units of a literal")
+            if literal_units:
+                _ok(ast.setUnits("dimensionless"), "set the units of a literal")
         for i in range(ast.getNumChildren()):
             units(ast.getChild(i))
 
@@ -112,15 +124,48 @@ def _math(formula: str):
 
 
 def _piecewise_linear(grid: np.ndarray, values: np.ndarray, literal) -> str:
-    """``f(rho)``: linear on each grid interval, equal to ``values`` at the grid points."""
-    pieces = []
-    last = grid.size - 2
-    for i in range(grid.size - 1):
+    """``f(rho)``: linear on each grid interval, equal to ``values`` at the grid points.
+
+    The intervals are chosen by a balanced binary search, ``piecewise(left, rho < split,
+    right)`` nested about the middle grid point, so the expression is ``ceil(log2(n - 1))``
+    piecewise levels deep for ``n`` grid points rather than one long chain: clients that
+    compile the expression tree recursively (COPASI) read every grid size.
+    """
+
+    def piece(i: int) -> str:
         slope = (f"({literal(values[i + 1])} - {literal(values[i])}) / "
                  f"({literal(grid[i + 1])} - {literal(grid[i])})")
-        piece = f"{literal(values[i])} + {slope} * (rho - {literal(grid[i])})"
-        pieces.append(piece if i == last else f"{piece}, rho < {literal(grid[i + 1])}")
-    return f"piecewise({', '.join(pieces)})" if len(pieces) > 1 else pieces[0]
+        return f"{literal(values[i])} + {slope} * (rho - {literal(grid[i])})"
+
+    def search(first: int, stop: int) -> str:
+        if stop - first == 1:
+            return piece(first)
+        middle = (first + stop) // 2
+        return f"piecewise({search(first, middle)}, rho < {literal(grid[middle])}, {search(middle, stop)})"
+
+    return search(0, grid.size - 1)
+
+
+def _hinge_linear(grid: np.ndarray, values: np.ndarray, literal) -> str:
+    """The same interpolant as :func:`_piecewise_linear` without comparisons: the first
+    piece's line plus, at each interior grid point, the change of slope times the hinge
+    ``max(0, rho - rho_i) = (rho - rho_i + abs(rho - rho_i)) / 2``. For stochastic clients
+    whose expression readers drop relational operators."""
+    slopes = [f"(({literal(values[i + 1])} - {literal(values[i])}) / ({literal(grid[i + 1])} - {literal(grid[i])}))"
+              for i in range(grid.size - 1)]
+    terms = [f"{literal(values[0])} + {slopes[0]} * (rho - {literal(grid[0])})"]
+    for i in range(1, grid.size - 1):
+        gap = f"(rho - {literal(grid[i])})"
+        terms.append(f"({slopes[i]} - {slopes[i - 1]}) * ({gap} + abs{gap}) / {literal(2.0)}")
+    return " + ".join(terms)
+
+
+def piecewise_depth(node) -> int:
+    """Largest number of nested ``piecewise`` nodes on a path of a libsbml math tree."""
+    import libsbml
+
+    below = max((piecewise_depth(node.getChild(i)) for i in range(node.getNumChildren())), default=0)
+    return below + (node.getType() == libsbml.AST_FUNCTION_PIECEWISE)
 
 
 def _closed_form(law, fractions: np.ndarray, kind: str, tolerance: float):
@@ -207,13 +252,13 @@ def _check(model, law, time_unit, fractions, tolerance):
     return tolerance
 
 
-def _unit(model, ident: str, multiplier: float, exponent: int) -> None:
+def _unit(model, ident: str, multiplier: float, exponent: int, kind: str = "second") -> None:
     import libsbml
 
     definition = model.createUnitDefinition()
     _ok(definition.setId(ident), f"name the unit {ident}")
     unit = definition.createUnit()
-    _ok(unit.setKind(libsbml.UNIT_KIND_SECOND), "set a unit kind")
+    _ok(unit.setKind(getattr(libsbml, f"UNIT_KIND_{kind.upper()}")), "set a unit kind")
     _ok(unit.setExponent(exponent), "set a unit exponent")
     _ok(unit.setScale(0), "set a unit scale")
     _ok(unit.setMultiplier(multiplier), "set a unit multiplier")
@@ -236,7 +281,8 @@ def _rule(model, variable: str, formula: str) -> None:
     _ok(rule.setMath(_math(formula)), f"set the rule for {variable}")
 
 
-def _reaction(model, ident: str, reactant, product, stoichiometry: float, formula: str, species) -> None:
+def _reaction(model, ident: str, reactant, product, stoichiometry: float, formula: str, species,
+              literal_units: bool = True) -> None:
     reaction = model.createReaction()
     _ok(reaction.setId(ident), f"name the reaction {ident}")
     _ok(reaction.setReversible(False), f"make {ident} irreversible")
@@ -253,10 +299,10 @@ def _reaction(model, ident: str, reactant, product, stoichiometry: float, formul
             ref = reaction.createModifier()
             _ok(ref.setSpecies(other), f"attach the modifier {other} to {ident}")
     law = reaction.createKineticLaw()
-    _ok(law.setMath(_math(formula)), f"set the rate of {ident}")
+    _ok(law.setMath(_math(formula, literal_units)), f"set the rate of {ident}")
 
 
-def _notes(model, law, fit, tolerance, time_unit, metadata) -> str:
+def _notes(model, law, fit, tolerance, time_unit, metadata, size=None) -> str:
     limit = model.tau is None
     if fit is None:
         how = (f"the exact piecewise-linear interpolant of the law's fractions on its "
@@ -271,6 +317,10 @@ def _notes(model, law, fit, tolerance, time_unit, metadata) -> str:
         f"Mean-field model of cells switching phenotype by a law derived with switchlaw "
         f"{metadata['switchlaw_version']}: {equation}.",
         f"Phenotypes: {', '.join(law.phenotypes)}. Densities are dimensionless; time is in {time_unit}s.",
+        *([] if size is None else [
+            f"Count variant for stochastic simulators: species are cell counts n_x, the density is "
+            f"rho = (sum_x n_x) / system_size with system_size = {size} cells, and every propensity is "
+            f"the rate above times system_size (no rules; each propensity states f_x(rho) itself)."]),
         f"Fractions f_x(rho): {how}.",
         f"Law: {metadata['objective']}, {metadata['route']} = {metadata['setting']!r}; "
         f"inputs sha256 {metadata['inputs_sha256']}.",
@@ -282,13 +332,16 @@ def _notes(model, law, fit, tolerance, time_unit, metadata) -> str:
     return f'<body xmlns="http://www.w3.org/1999/xhtml">{body}</body>'
 
 
-def _annotation(metadata, fit, time_unit) -> str:
+def _annotation(metadata, fit, time_unit, size=None) -> str:
     attributes = {
         "version": metadata["switchlaw_version"], "inputs_sha256": metadata["inputs_sha256"],
         "objective": metadata["objective"], "route": metadata["route"],
         "setting": repr(metadata["setting"]), "converged": str(metadata["converged"]).lower(),
         "fractions": "table" if fit is None else fit.kind, "time_unit": time_unit,
     }
+    attributes["variant"] = "density" if size is None else "counts"
+    if size is not None:
+        attributes["system_size"] = str(size)
     if fit is not None:
         attributes["fit_max_abs_error"] = repr(float(fit.max_abs_error))
     text = " ".join(f"switchlaw:{key}={quoteattr(value)}" for key, value in attributes.items())
@@ -298,12 +351,46 @@ def _annotation(metadata, fit, time_unit) -> str:
             f"</switchlaw:provenance></annotation>")
 
 
+def _system_size(variant, system_size):
+    choice(variant, "variant", VARIANTS)
+    if variant == "density":
+        if system_size is not None:
+            raise InputError("`system_size` applies only with variant='counts'")
+        return None
+    if system_size is None:
+        raise InputError("variant='counts' needs `system_size` (cells at density 1, an integer >= 1)")
+    if isinstance(system_size, bool) or not float(system_size).is_integer() or system_size < 1:
+        raise InputError(f"`system_size` must be an integer >= 1 (got {system_size!r})")
+    return int(system_size)
+
+
+def _initial_counts(model, law, initial, size: int) -> np.ndarray:
+    """Cell counts at time 0: one total (fast switching) or one count per phenotype."""
+    wanted = 1 if model.tau is None else len(law.phenotypes)
+    start = np.atleast_1d(np.asarray(initial, dtype=float))
+    if (start.ndim != 1 or start.size != wanted or not np.isfinite(start).all() or (start < 0).any()
+            or not all(float(c).is_integer() for c in start) or start.sum() > size):
+        what = "one cell count" if wanted == 1 else f"{wanted} cell counts (one per phenotype)"
+        raise InputError(
+            f"`initial` must be {what}: non-negative integers totalling at most `system_size`={size} "
+            f"(got {initial!r})"
+        )
+    return start
+
+
 def sbml_text(model, law, *, initial, time_unit="second", fractions="table", tolerance=1e-3,
-              study=None) -> tuple:
-    """The SBML document of ``model`` with the fractions of ``law``: ``(text, inputs_sha256)``."""
+              study=None, variant="density", system_size=None) -> tuple:
+    """The SBML document of ``model`` with the fractions of ``law``: ``(text, inputs_sha256)``.
+
+    ``variant="density"`` writes densities (fractions of carrying capacity) for ODE clients;
+    ``variant="counts"`` writes cell counts in a population of ``system_size`` cells at
+    density 1, for stochastic (Gillespie) clients.
+    """
     import libsbml
 
     tolerance = _check(model, law, time_unit, fractions, tolerance)
+    size = _system_size(variant, system_size)
+    counts = size is not None
     grid = law.densities
     table = grid_fractions(law)
     fit = None if fractions == "table" else _closed_form(law, table, fractions, tolerance)
@@ -314,22 +401,29 @@ def sbml_text(model, law, *, initial, time_unit="second", fractions="table", tol
         first = float(fit.evaluate(rho))
         return np.array([first, 1.0 - first])
 
-    start = _initial(model, law, initial, f_of)
+    start = _initial_counts(model, law, initial, size) if counts else _initial(model, law, initial, f_of)
     digest = sha256_of_law(law)
     metadata = law_metadata(law, study, digest)
     literal = _Literals()
     ids = _identifiers(law.phenotypes)
     per_time = f"per_{time_unit}"
+    amount = "item" if counts else "dimensionless"
 
     document = libsbml.SBMLDocument(3, 2)
     sbml = document.createModel()
-    _ok(sbml.setId("switchlaw_mean_field"), "name the model")
-    _ok(sbml.setName("switchlaw mean-field model"), "describe the model")
+    _ok(sbml.setId("switchlaw_cell_counts" if counts else "switchlaw_mean_field"), "name the model")
+    _ok(sbml.setName("switchlaw cell-count model" if counts else "switchlaw mean-field model"), "describe the model")
     if time_unit != "second":
         _unit(sbml, time_unit, TIME_UNITS[time_unit], 1)
     _unit(sbml, per_time, TIME_UNITS[time_unit], -1)
-    for attribute, value in (("TimeUnits", time_unit), ("SubstanceUnits", "dimensionless"),
-                             ("ExtentUnits", "dimensionless"), ("VolumeUnits", "dimensionless")):
+    if counts:
+        _unit(sbml, f"item_{per_time}", TIME_UNITS[time_unit], -1)
+        definition = sbml.getUnitDefinition(f"item_{per_time}")
+        item = definition.createUnit()
+        for setter, value in (("Kind", libsbml.UNIT_KIND_ITEM), ("Exponent", 1), ("Scale", 0), ("Multiplier", 1.0)):
+            _ok(getattr(item, "set" + setter)(value), "define items per time")
+    for attribute, value in (("TimeUnits", time_unit), ("SubstanceUnits", amount),
+                             ("ExtentUnits", amount), ("VolumeUnits", "dimensionless")):
         _ok(getattr(sbml, "set" + attribute)(value), f"set the model's {attribute}")
     space = sbml.createCompartment()
     _ok(space.setId("space"), "name the compartment")
@@ -338,15 +432,19 @@ def sbml_text(model, law, *, initial, time_unit="second", fractions="table", tol
     _ok(space.setSize(1.0), "set the compartment's size")
     _ok(space.setUnits("dimensionless"), "set the compartment's units")
 
-    species = ["rho"] if model.tau is None else [f"cells_{i}" for i in ids]
-    names = ["total density"] if model.tau is None else [f"density of {n}" for n in law.phenotypes]
-    for ident, name, amount in zip(species, names, start):
+    if counts:
+        species = ["cells"] if model.tau is None else [f"cells_{i}" for i in ids]
+        names = ["cells"] if model.tau is None else [f"cells of {n}" for n in law.phenotypes]
+    else:
+        species = ["rho"] if model.tau is None else [f"cells_{i}" for i in ids]
+        names = ["total density"] if model.tau is None else [f"density of {n}" for n in law.phenotypes]
+    for ident, name, value in zip(species, names, start):
         s = sbml.createSpecies()
         _ok(s.setId(ident), f"name the species {ident}")
         _ok(s.setName(name), f"describe the species {ident}")
         _ok(s.setCompartment("space"), f"place {ident}")
-        _ok(s.setInitialAmount(float(literal(amount))), f"set the initial amount of {ident}")
-        _ok(s.setSubstanceUnits("dimensionless"), f"set the units of {ident}")
+        _ok(s.setInitialAmount(float(literal(value))), f"set the initial amount of {ident}")
+        _ok(s.setSubstanceUnits(amount), f"set the units of {ident}")
         _ok(s.setHasOnlySubstanceUnits(True), f"make {ident} an amount")
         _ok(s.setBoundaryCondition(False), f"set the boundary of {ident}")
         _ok(s.setConstant(False), f"let {ident} change")
@@ -357,40 +455,67 @@ def sbml_text(model, law, *, initial, time_unit="second", fractions="table", tol
         _parameter(sbml, f"death_{i}", per_time, float(literal(model.death[ids.index(i)])), f"death rate of {name}")
         _parameter(sbml, f"crowding_{i}", per_time, float(literal(model.crowding[ids.index(i)])),
                    f"extra death per unit density of {name}")
-        _parameter(sbml, f"fraction_{i}", "dimensionless", None, f"mean-field fraction f of {name}")
+        if not counts:
+            _parameter(sbml, f"fraction_{i}", "dimensionless", None, f"mean-field fraction f of {name}")
     if model.tau is not None:
         _parameter(sbml, "tau", time_unit, float(literal(model.tau)), "decision timescale")
+    if counts:
+        _parameter(sbml, "system_size", "item", float(literal(size)), "cells at density 1 (carrying capacity)")
+    elif model.tau is not None:
         _parameter(sbml, "rho", "dimensionless", None, "total density")
         _rule(sbml, "rho", " + ".join(species))
+
+    # The count variant has no rules (stochastic clients do not all evaluate them): the
+    # density and the fractions are written out inside each propensity. Its numbers are
+    # named dimensionless constants, not literals with sbml:units, which some stochastic
+    # clients cannot parse; units stay fully checkable.
+    if counts:
+        constants: dict = {}
+
+        def number(value) -> str:
+            key = float(value)
+            if key not in constants:
+                constants[key] = f"number_{len(constants)}"
+                _parameter(sbml, constants[key], "dimensionless", float(literal(key)))
+            return constants[key]
+    else:
+        number = literal
+    rho = f"(({' + '.join(species)}) / system_size)" if counts else "rho"
+    fraction = {}
     for x, i in enumerate(ids):
         if fit is None:
-            formula = _piecewise_linear(grid, table[:, x], literal)
+            formula = (_hinge_linear if counts else _piecewise_linear)(grid, table[:, x], number)
         elif x == 0:
-            formula = _closed_form_text(fit, literal)
+            formula = _closed_form_text(fit, number)
         else:
-            formula = f"{literal(1.0)} - fraction_{ids[0]}"
-        _rule(sbml, f"fraction_{i}", formula)
+            formula = f"{number(1.0)} - ({fraction[ids[0]]})" if counts else f"{number(1.0)} - fraction_{ids[0]}"
+        if counts:
+            fraction[i] = re.sub(r"\brho\b", rho, formula)
+        else:
+            fraction[i] = f"fraction_{i}"
+            _rule(sbml, f"fraction_{i}", formula)
 
+    units = not counts
     if model.tau is None:
-        one = literal(1.0)
-        birth = " + ".join(f"fraction_{i} * division_{i}" for i in ids)
-        death = " + ".join(f"fraction_{i} * (death_{i} + crowding_{i} * rho)" for i in ids)
-        _reaction(sbml, "birth", "rho", "rho", 2.0, f"({birth}) * ({one} - rho) * rho", species)
-        _reaction(sbml, "death", "rho", None, 0.0, f"({death}) * rho", species)
+        one, cells = number(1.0), species[0]
+        birth = " + ".join(f"({fraction[i]}) * division_{i}" for i in ids)
+        death = " + ".join(f"({fraction[i]}) * (death_{i} + crowding_{i} * {rho})" for i in ids)
+        _reaction(sbml, "birth", cells, cells, 2.0, f"({birth}) * ({one} - {rho}) * {cells}", species, units)
+        _reaction(sbml, "death", cells, None, 0.0, f"({death}) * {cells}", species, units)
     else:
         for i, cells in zip(ids, species):
             _reaction(sbml, f"division_of_{i}", cells, cells, 2.0,
-                      f"division_{i} * {cells} * ({literal(1.0)} - rho)", species)
+                      f"division_{i} * {cells} * ({number(1.0)} - {rho})", species, units)
             _reaction(sbml, f"death_of_{i}", cells, None, 0.0,
-                      f"(death_{i} + crowding_{i} * rho) * {cells}", species)
+                      f"(death_{i} + crowding_{i} * {rho}) * {cells}", species, units)
         for i, source in zip(ids, species):
             for j, target in zip(ids, species):
                 if i != j:
                     _reaction(sbml, f"switch_{i}_to_{j}", source, target, 1.0,
-                              f"{source} * fraction_{j} / tau", species)
+                              f"{source} * ({fraction[j]}) / tau", species, units)
 
-    _ok(sbml.setNotes(_notes(model, law, fit, tolerance, time_unit, metadata)), "set the notes")
-    _ok(sbml.setAnnotation(_annotation(metadata, fit, time_unit)), "set the annotation")
+    _ok(sbml.setNotes(_notes(model, law, fit, tolerance, time_unit, metadata, size)), "set the notes")
+    _ok(sbml.setAnnotation(_annotation(metadata, fit, time_unit, size)), "set the annotation")
     text = literal.substitute(libsbml.writeSBMLToString(document))
     problems = consistency_problems(text)
     if problems:
@@ -415,9 +540,10 @@ def consistency_problems(text: str) -> list:
     ]
 
 
-def write(model, path: Path, *, law, initial, time_unit, fractions, tolerance, study) -> tuple:
+def write(model, path: Path, *, law, initial, time_unit, fractions, tolerance, study, variant,
+          system_size) -> tuple:
     text, digest = sbml_text(model, law, initial=initial, time_unit=time_unit, fractions=fractions,
-                             tolerance=tolerance, study=study)
+                             tolerance=tolerance, study=study, variant=variant, system_size=system_size)
     return {path: text.encode()}, digest
 
 
@@ -426,7 +552,7 @@ FORMAT = register(Format(
     suffixes=(".xml", ".sbml"),
     accepts=("MeanField",),
     options={"law": REQUIRED, "initial": REQUIRED, "time_unit": "second", "fractions": "table",
-             "tolerance": 1e-3, "study": None},
+             "tolerance": 1e-3, "study": None, "variant": "density", "system_size": None},
     write=write,
     description="SBML Level 3 Version 2 of the mean-field model (units declared, provenance annotated)",
 ))

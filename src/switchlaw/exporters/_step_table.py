@@ -3,8 +3,10 @@
 Long-format CSV with one row per density x state x (from, to) phenotype pair, plus a JSON
 sidecar. With step ``dt`` and decision timescale ``tau`` a cell re-decides within a step with
 probability ``1 - exp(-dt / tau)`` and then takes ``j`` with probability ``q(j | y, rho)``
-(domain notes §3), so ``P[y, i, j] = (1 - exp(-dt/tau)) q(j | y)`` for ``i != j`` and the
-diagonal holds the rest.
+(domain notes §3), so ``P[y, i, j] = (1 - exp(-dt/tau)) q(j | y)`` for ``i != j`` and
+``P[y, i, i] = exp(-dt/tau) + (1 - exp(-dt/tau)) q(i | y)``: the closed form of
+``expm(K dt)`` for the rank-one generator ``K``, a sum of non-negative terms at any
+``dt / tau`` (see :meth:`SwitchingLaw.step_probabilities`).
 """
 
 from __future__ import annotations
@@ -17,9 +19,9 @@ import numpy as np
 from .._errors import InputError
 from .._validate import as_positive, choice
 from ._csv import fill, indexed_rows, long_table, sidecar_path
-from ._provenance import TIME_UNITS, UNITS, law_metadata, sha256_of_law
+from ._provenance import TIME_UNITS, law_metadata, sha256_of_law
 from ._registry import REQUIRED, Format, register
-from ._tables import STEP_KIND, attributes, axes, dumps, from_json_values, header, law_arrays, number
+from ._tables import STEP_KIND, attributes, axes, cf, dumps, from_json_values, header, law_arrays, number
 
 #: Largest allowed deviation of a row of per-step probabilities from summing to one.
 ROW_TOLERANCE = 1e-12
@@ -62,12 +64,11 @@ def step_dataset(arrays: dict, phenotypes, steps: np.ndarray, metadata: dict, st
     names = np.array(phenotypes, dtype=str)
     coords["from_phenotype"] = ("from_phenotype", names, {"long_name": "phenotype at the start of the step"})
     coords["to_phenotype"] = ("to_phenotype", names, {"long_name": "phenotype at the end of the step"})
-    data = {"step_probability": (("density", "state", "from_phenotype", "to_phenotype"), steps, {
-        "units": UNITS["step_probability"],
-        "long_name": "probability of being in to_phenotype after one step of length dt"})}
+    data = {"step_probability": (("density", "state", "from_phenotype", "to_phenotype"), steps, cf(
+        "step_probability", "probability of being in to_phenotype after one step of length dt"))}
     values = np.asarray(arrays["state_values"], dtype=float)
     if values.ndim == 2:
-        data["state_value"] = (("state", "signal"), values, {"units": UNITS["state_value"]})
+        data["state_value"] = (("state", "signal"), values, cf("state_value", "signal values of the state"))
     attrs = attributes(metadata, "per-step phenotype switching probabilities")
     attrs.update(step)
     return xr.Dataset(data, coords=coords, attrs=attrs)

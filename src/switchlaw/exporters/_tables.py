@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from .._errors import InputError
-from ._provenance import CAUTION, LAW_ARRAYS, UNITS, law_sha256
+from ._provenance import CAUTION, CF_UNITS, LAW_ARRAYS, UNITS, law_sha256
 
 #: Value of the ``kind`` key of a law table and of a step table.
 LAW_KIND = "switching-law"
@@ -106,6 +106,16 @@ def load_document(path: Path, kind: str | None = None) -> dict:
 
 
 # -------------------------------------------------------------------------- dataset
+def cf(name: str, long_name: str, **more) -> dict:
+    """Variable attributes: ``units`` where UDUNITS parses it (:data:`CF_UNITS`), otherwise
+    the unit of :data:`UNITS` stated in the long name."""
+    if name in CF_UNITS:
+        unit = UNITS[name]
+        described = long_name if unit == CF_UNITS[name] else f"{long_name}; unit: {unit}"
+        return {"units": CF_UNITS[name], "long_name": described, **more}
+    return {"long_name": f"{long_name}; unit: {UNITS[name]}", **more}
+
+
 def attributes(metadata: dict, title: str) -> dict:
     """CF-style global attributes plus the provenance record (netCDF-safe types)."""
     attrs = {
@@ -147,14 +157,13 @@ def axes(arrays: dict, phenotypes) -> dict:
     """Coordinates shared by law and step tables."""
     coords = {
         "density": ("density", np.asarray(arrays["densities"], dtype=float),
-                    {"units": UNITS["density"], "long_name": "population density"}),
+                    cf("density", "population density")),
         "state": ("state", np.asarray(arrays["states"]), {"long_name": "sensed environment state"}),
         "phenotype": ("phenotype", np.array(phenotypes, dtype=str), {"long_name": "phenotype"}),
     }
     values = np.asarray(arrays["state_values"], dtype=float)
     if values.ndim == 1:
-        coords["state_value"] = ("state", values, {"units": UNITS["state_value"],
-                                                   "long_name": "signal value of the state"})
+        coords["state_value"] = ("state", values, cf("state_value", "signal value of the state"))
     return coords
 
 
@@ -165,22 +174,18 @@ def law_dataset(arrays: dict, phenotypes, metadata: dict):
     table = np.asarray(arrays["probability"], dtype=float)
     state_probs = np.asarray(arrays["state_probability"], dtype=float)
     data = {
-        "probability": (("density", "state", "phenotype"), table, {
-            "units": UNITS["probability"],
-            "long_name": "probability q(x | y, density) of adopting a phenotype"}),
-        "state_probability": (("density", "state"), state_probs, {
-            "units": UNITS["state_probability"],
-            "long_name": "probability p(y | density) of the sensed state"}),
-        "fraction": (("density", "phenotype"), np.einsum("ky,kyx->kx", state_probs, table), {
-            "units": UNITS["fraction"],
-            "long_name": "mean-field phenotype fraction f(x | density) = sum_y p(y) q(x | y)"}),
-        "beta": ("density", np.asarray(arrays["beta"], dtype=float), {
-            "units": UNITS["beta"],
-            "long_name": "sensitivity beta (Lagrange multiplier); inf where a budget does not bind"}),
-        "information_bits": ("density", np.asarray(arrays["information_bits"], dtype=float), {
-            "units": UNITS["information_bits"], "long_name": "mutual information I(X;Y)"}),
-        "expected_payoff": ("density", np.asarray(arrays["expected_payoff"], dtype=float), {
-            "units": UNITS["expected_payoff"], "long_name": "expected payoff E[u]"}),
+        "probability": (("density", "state", "phenotype"), table,
+                        cf("probability", "probability q(x | y, density) of adopting a phenotype")),
+        "state_probability": (("density", "state"), state_probs,
+                              cf("state_probability", "probability p(y | density) of the sensed state")),
+        "fraction": (("density", "phenotype"), np.einsum("ky,kyx->kx", state_probs, table),
+                     cf("fraction", "mean-field phenotype fraction f(x | density) = sum_y p(y) q(x | y)")),
+        "beta": ("density", np.asarray(arrays["beta"], dtype=float), cf(
+            "beta", "sensitivity beta (Lagrange multiplier; inf where a budget does not bind)")),
+        "information_bits": ("density", np.asarray(arrays["information_bits"], dtype=float),
+                             cf("information_bits", "mutual information I(X;Y)")),
+        "expected_payoff": ("density", np.asarray(arrays["expected_payoff"], dtype=float),
+                            cf("expected_payoff", "expected payoff E[u]")),
         "converged": ("density", np.asarray(arrays["converged"]).astype(np.int8), {
             "long_name": "solver converged at this density",
             "flag_values": np.array([0, 1], dtype=np.int8),
@@ -188,8 +193,7 @@ def law_dataset(arrays: dict, phenotypes, metadata: dict):
     }
     values = np.asarray(arrays["state_values"], dtype=float)
     if values.ndim == 2:
-        data["state_value"] = (("state", "signal"), values, {
-            "units": UNITS["state_value"], "long_name": "signal values of the state"})
+        data["state_value"] = (("state", "signal"), values, cf("state_value", "signal values of the state"))
     return xr.Dataset(data, coords=axes(arrays, phenotypes),
                       attrs=attributes(metadata, "switching law q(x | y, density)"))
 

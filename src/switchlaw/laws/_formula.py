@@ -17,6 +17,12 @@ def _logistic(v, a, b):
     return 1.0 / (1.0 + np.exp(-(a + b * v)))
 
 
+def _probability(kind: str, values):
+    """A fitted Hill curve can leave [0, 1] (low < 0 or high > 1): evaluated and exported
+    clipped to [0, 1]; the logistic form cannot leave it."""
+    return np.clip(values, 0.0, 1.0) if kind == "hill" else values
+
+
 def _hill(v, low, high, half, n):
     v = np.clip(v, 0.0, None)
     ratio = np.where(v > 0, (v / half) ** n, 0.0)
@@ -63,7 +69,7 @@ class FormulaFit:
             self.parameters[name] if not self.per_density else self.parameters[name][density_index]
             for name in names
         ]
-        return shape(np.asarray(v, dtype=float), *params)
+        return _probability(self.kind, shape(np.asarray(v, dtype=float), *params))
 
     def expression(self, density_index: int | None = None) -> str:
         """The formula with numbers substituted (plain Python syntax, ``exp`` from math)."""
@@ -149,6 +155,6 @@ def fit_formula(law: SwitchingLaw, phenotype, *, kind: str = "logistic", per_den
         fitted = np.broadcast_to(shape(v, *theta), target.shape)
     return FormulaFit(
         kind=kind, phenotype=law.phenotypes[index], formula=formula, parameters=parameters,
-        densities=law.densities, max_abs_error=float(np.abs(fitted - target).max()),
+        densities=law.densities, max_abs_error=float(np.abs(_probability(kind, fitted) - target).max()),
         per_density=per_density,
     )

@@ -126,19 +126,40 @@ class SwitchingLaw:
     def step_probabilities(self, dt, tau, density) -> np.ndarray:
         """Per-step switching probabilities ``P[y, i, j]`` for a simulator with step ``dt``.
 
-        A cell re-decides within a step with probability ``1 - exp(-dt / tau)`` and then takes
-        ``j`` with probability ``q(j | y)``: ``P[y, i, j] = (1 - exp(-dt/tau)) q(j | y)`` for
-        ``i != j``; the diagonal holds the rest, so rows sum to one.
+        A cell re-decides at rate ``1 / tau`` and then takes ``j`` with probability
+        ``q(j | y)``: the generator is ``K = (1 q^T - I) / tau`` and ``P = expm(K dt)``. ``K`` is
+        rank one plus a multiple of the identity, so ``expm(K dt) = e I + (1 - e) 1 q^T`` with
+        ``e = exp(-dt / tau)``: ``P[y, i, j] = (1 - e) q(j | y)`` for ``i != j`` and
+        ``P[y, i, i] = e + (1 - e) q(i | y)``. Every entry is a sum of non-negative terms, so
+        the matrix is stochastic (rows sum to one within round-off) at any ``dt / tau > 0``.
+
+        Parameters
+        ----------
+        dt : float
+            Step length (time units), > 0.
+        tau : float
+            Decision timescale (same time units), > 0.
+        density : float
+            Population density at which ``q`` is evaluated.
+
+        Returns
+        -------
+        numpy.ndarray
+            ``P[y, i, j]``, shape (states, phenotypes, phenotypes), entries in [0, 1].
+
+        References
+        ----------
+        Norris, J. R. (1997). *Markov Chains*, §2.1 (``P(t) = expm(t Q)``).
         """
         dt = as_positive(dt, "dt")
         tau = as_positive(tau, "tau")
         q = self.probs(density)
+        stay = math.exp(-dt / tau)
         chance = -math.expm1(-dt / tau)
         steps = np.repeat(q[:, None, :], q.shape[1], axis=1) * chance
         diagonal = np.arange(q.shape[1])
-        steps[:, diagonal, diagonal] = 0.0
-        steps[:, diagonal, diagonal] = 1.0 - steps.sum(axis=2)
-        return steps
+        steps[:, diagonal, diagonal] += stay
+        return np.clip(steps, 0.0, 1.0)
 
     # ---------------------------------------------------------------- outputs
     def to_xarray(self):
