@@ -12,7 +12,7 @@ start quickly; ``switchlaw.__all__`` lists them all.
 
 from __future__ import annotations
 
-import importlib
+import importlib as _importlib
 
 __version__ = "0.1.0"
 
@@ -144,10 +144,11 @@ def __getattr__(name: str):
         module = _EXPORTS[name]
     except KeyError:
         raise AttributeError(f"module 'switchlaw' has no attribute {name!r}") from None
-    value = getattr(importlib.import_module(module, __name__), name)
+    value = getattr(_importlib.import_module(module, __name__), name)
     globals()[name] = value
     return value
 
 
 def __dir__():
-    return sorted(set(globals()) | set(__all__))
+    """The public names and the module's dunders (not its imports or private helpers)."""
+    return sorted(set(__all__) | {name for name in globals() if name.startswith("__") and name.endswith("__")})

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from .._errors import InputError
 from ._batch import run_batch
-from ._executors import Target, function_bytes
+from ._targets import Target, function_bytes
 
 #: Seconds to wait for a scheduler to answer.
 CONNECT_TIMEOUT = 5
