@@ -125,7 +125,7 @@ class _SweepDraws:
 
 
 def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Streams, *,
-               times: np.ndarray, snap: np.ndarray, dt_max: float, upper=None):
+               times: np.ndarray, snap: np.ndarray, dt_max: float, upper=None, by_class: bool = False):
     """Simulate every replicate, recording phenotype counts at ``times``.
 
     Parameters
@@ -139,7 +139,11 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
     dt_max : float
         Longest sweep; each interval between output times is cut into equal sweeps no longer.
     upper : int, optional
-        A replicate stops (frozen) once it holds this many cells.
+        A replicate stops (frozen) once it holds this many cells (checked after every class,
+        so the classes are taken one after another).
+    by_class : bool
+        Take the classes one after another even without ``upper`` (the same outcome as the
+        default, which resolves all classes of a sweep at once with :func:`_resolve_sweep`).
 
     Returns
     -------
@@ -185,6 +189,9 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         if snap[k]:
             snapshots.append(current.copy())
 
+    # Per-site marks of the at-once resolution (:func:`_resolve_sweep`): when the site is vacated
+    # and when it is filled, as a class turn; C means never. Reset after every sweep.
+    marks = None if upper is not None or by_class else np.full((2, R * W), C, dtype=np.int64)
     now = 0.0
     for k, t_out in enumerate(times):
         span = t_out - now
@@ -214,6 +221,12 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
             xs = codes_now.take(acting).astype(np.int64) - 1
             event, inside = event_index(xs, u_now / chance[xs + 1], share, lower)
             event = _ORDER[np.minimum(event, last_event[xs])]
+            if upper is None and not by_class:
+                # No replicate can freeze inside the sweep: resolve every class at once.
+                _resolve_sweep(flat, cells, rr, ss, xs, event, inside, rank[rr, label[ss]], C, W, N, S,
+                               neighbour_flat=neighbour_flat, across=across, closed=closed,
+                               rules=rules if deciding else None, by_count=by_count, marks=marks)
+                continue
             # Sort the acting cells by (turn of their class, event): each piece is a slice.
             key = (rank[rr, label[ss]] * 4 + event).astype(np.int16 if 4 * C < 2**15 else np.int64)
             sequence = np.argsort(key, kind="stable")
@@ -268,3 +281,78 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         now = t_out
         record(k)
     return recorded, snapshots, turns, cells
+
+
+def _resolve_sweep(flat, cells, rr, ss, xs, event, inside, turn, C, W, N, S, *, neighbour_flat, across,
+                   closed, rules, by_count, marks):
+    """Apply one sweep's acting cells, every class at once, with the outcome of taking the
+    classes one after another in the order ``turn``.
+
+    Only three things couple cells of different classes, and each is a function of earlier
+    turns alone: a divider or mover succeeds if its target is free at its turn (the target was
+    empty at the start or was vacated earlier, by a death or a successful move, and no earlier
+    spreader claimed it since; within one class no two cells share a site or a neighbour); a
+    decider counts its occupied neighbours at its turn; and it reads the number of cells after
+    its own class's births and deaths (as the class-by-class loop does). Successes are found by
+    fixed-point iteration: after ``k`` rounds every spreader of the first ``k`` turns is right
+    (its success depends only on movers of earlier turns), so at most ``C`` rounds, usually two
+    or three, reach the unique fixed point. Then the grid is written once.
+
+    ``flat`` (the grid, ``replicates * W``) and ``cells`` are updated in place; ``marks`` is a
+    ``(2, replicates * W)`` scratch of vacate / fill turns, ``C`` everywhere on entry and exit.
+    """
+    home = rr * W + ss
+    vacated, filled = marks
+    spreading = np.flatnonzero(event <= 1)
+    sp_home, sp_turn, sp_code = home.take(spreading), turn.take(spreading), xs.take(spreading) + 1
+    moving = event.take(spreading) == 1
+    pick = np.minimum((inside.take(spreading) * N).astype(np.int64), N - 1)
+    target_site = neighbour_flat.take(ss.take(spreading) * N + pick)
+    target = rr.take(spreading) * W + target_site
+    # Beyond a closed edge (column S, always 0) is never free.
+    possible = target_site != S if closed else np.ones(spreading.size, dtype=bool)
+    free_at_start = (flat.take(target) == 0) & possible
+    dying = np.flatnonzero(event == 2)
+    vacated[home.take(dying)] = turn.take(dying)
+    ok = np.zeros(spreading.size, dtype=bool)
+    mover_home, mover_turn = sp_home[moving], sp_turn[moving]
+    for _ in range(C + 1):
+        vacated[mover_home] = np.where(ok[moving], mover_turn, C)
+        # Free at its turn: empty at the start, or vacated by an earlier turn.
+        free = free_at_start | (possible & (vacated.take(target) < sp_turn))
+        claim = target[free]
+        np.minimum.at(filled, claim, sp_turn[free])
+        new = free & (filled.take(target) == sp_turn)
+        filled[claim] = C
+        if np.array_equal(new, ok):
+            break
+        ok = new
+    else:  # pragma: no cover - the iteration is exact after C rounds (see above)
+        raise RuntimeError("sweep resolution did not settle")
+    vacated[mover_home] = np.where(ok[moving], mover_turn, C)
+    filled[target[ok]] = sp_turn[ok]
+    # Cells after each class: births minus deaths, by replicate and turn, cumulated over turns.
+    R = cells.size
+    born = ok & ~moving
+    change = (np.bincount(rr.take(spreading)[born] * C + sp_turn[born], minlength=R * C)
+              - np.bincount(rr.take(dying) * C + turn.take(dying), minlength=R * C))
+    deciding = np.flatnonzero(event == 3)
+    if deciding.size and rules is not None:
+        dr, dturn = rr.take(deciding), turn.take(deciding)
+        after = cells[dr] + np.cumsum(change.reshape(R, C), axis=1)[dr, dturn]
+        around_sites = across.take(ss.take(deciding), axis=1) + dr * W  # (directions, deciders)
+        occupied = ((flat.take(around_sites) != 0) & (vacated.take(around_sites) > dturn)) | (
+            filled.take(around_sites) < dturn)
+        new_codes = rules.decide_columns(occupied.sum(axis=0), by_count, after, inside.take(deciding)) + 1
+    else:
+        new_codes = None
+    cells += change.reshape(R, C).sum(axis=1)
+    # Write the grid: first every site vacated, then every site filled, then every decision.
+    flat[home.take(dying)] = 0
+    flat[mover_home[ok[moving]]] = 0
+    flat[target[ok]] = sp_code[ok].astype(np.int8)
+    if new_codes is not None:
+        flat[home.take(deciding)] = new_codes.astype(np.int8)
+    vacated[home.take(dying)] = C
+    vacated[mover_home] = C
+    filled[target[ok]] = C
