@@ -11,3 +11,28 @@ def test_dir_lists_public_names_and_dunders_only():
     assert "annotations" not in dir(switchlaw) and "importlib" not in dir(switchlaw)
     assert all(name.startswith("__") and name.endswith("__") for name in extra), extra
     assert set(switchlaw.__all__) <= set(dir(switchlaw))
+
+
+def test_old_habitat_names_warn_and_still_work():
+    # Kept for one release (issue 17): the old class names and the old `env=` keyword of the
+    # growth functions. Reference for the number: Kelly (1956) / Cover & Thomas (2006, ch. 6),
+    # the growth rate of proportional betting with fitness diag(2, 2) in a fair coin habitat is
+    # sum_e p(e) log(2 p(e)) = log 2 - H(p) = 0 for p = (1/2, 1/2).
+    import pytest
+
+    with pytest.warns(DeprecationWarning, match="MarkovHabitat"):
+        old = switchlaw.MarkovEnvironment
+    assert old is switchlaw.MarkovHabitat
+    for old_name, new_name in (("PeriodicEnvironment", "PeriodicHabitat"), ("SwitchingEnvironment", "SwitchingHabitat")):
+        with pytest.warns(DeprecationWarning, match=new_name):
+            assert getattr(switchlaw, old_name) is getattr(switchlaw, new_name)
+        with pytest.warns(DeprecationWarning, match=new_name):
+            assert getattr(switchlaw.growth, old_name) is getattr(switchlaw, new_name)
+    fitness = [[2.0, 0.0], [0.0, 2.0]]
+    with pytest.warns(DeprecationWarning, match="habitat"):
+        rate = switchlaw.growth_rate(fitness, env=[0.5, 0.5], strategy=[0.5, 0.5])
+    assert abs(rate) < 1e-12
+    assert switchlaw.growth_rate(fitness, habitat=[0.5, 0.5], strategy=[0.5, 0.5]) == rate
+    with pytest.raises(switchlaw.InputError, match="habitat"):
+        switchlaw.growth_rate(fitness, env=[0.5, 0.5], habitat=[0.5, 0.5], strategy=[0.5, 0.5])
+    assert "MarkovEnvironment" not in switchlaw.__all__ and "MarkovHabitat" in switchlaw.__all__

@@ -80,13 +80,13 @@ _EXPORTS = {
     "generation_growth": ".growth",
     "growth_rate": ".growth",
     "GrowthEstimate": ".growth",
-    "MarkovEnvironment": ".growth",
+    "MarkovHabitat": ".growth",
     "optimal_switching": ".growth",
-    "PeriodicEnvironment": ".growth",
+    "PeriodicHabitat": ".growth",
     "sensing_tradeoff": ".growth",
     "SensingTradeoff": ".growth",
     "switching_generator": ".growth",
-    "SwitchingEnvironment": ".growth",
+    "SwitchingHabitat": ".growth",
     "SwitchingOptimum": ".growth",
     "symmetric_cue": ".growth",
     # stochastic
@@ -138,8 +138,21 @@ _EXPORTS = {
 
 __all__ = sorted(_EXPORTS)
 
+#: Old public name -> its new name, kept for one release with a DeprecationWarning.
+_RENAMED = {
+    "MarkovEnvironment": "MarkovHabitat",
+    "PeriodicEnvironment": "PeriodicHabitat",
+    "SwitchingEnvironment": "SwitchingHabitat",
+}
+
 
 def __getattr__(name: str):
+    if name in _RENAMED:
+        import warnings
+
+        warnings.warn(f"`switchlaw.{name}` is deprecated since 0.2; use `switchlaw.{_RENAMED[name]}`",
+                      DeprecationWarning, stacklevel=2)
+        return __getattr__(_RENAMED[name])
     try:
         module = _EXPORTS[name]
     except KeyError:
