@@ -36,3 +36,22 @@ def test_old_habitat_names_warn_and_still_work():
     with pytest.raises(switchlaw.InputError, match="habitat"):
         switchlaw.growth_rate(fitness, env=[0.5, 0.5], habitat=[0.5, 0.5], strategy=[0.5, 0.5])
     assert "MarkovEnvironment" not in switchlaw.__all__ and "MarkovHabitat" in switchlaw.__all__
+
+
+def test_point_functions_take_model_and_warn_on_study():
+    # `study` means the study file only (issue 17); the point functions' first argument is the
+    # model (a MeanField or a builder); `study=` still works for one release, with a warning.
+    # Reference for the value: Lotka-Volterra-type logistic growth n' = (b - d) n - b n^2 with a
+    # single phenotype has its stable equilibrium at 1 - d / b (Murray 2002, Mathematical
+    # Biology I, ch. 1), here b = 1, d = 0.25: 0.75.
+    import numpy as np
+    import pytest
+
+    model = switchlaw.MeanField({"grow": switchlaw.Linear(0.0, 1.0)}, lambda rho: switchlaw.occupancy(4, rho),
+                                division=[1.0], death=[0.25])
+    with pytest.warns(DeprecationWarning, match="model"):
+        old = switchlaw.RegimeSummary(study=model)
+    new = switchlaw.RegimeSummary(model)
+    for summary in (old, new):
+        values = summary({"beta": 1.0}, None)
+        assert np.isclose(float(values["stable_density"]), 0.75, atol=1e-6)
