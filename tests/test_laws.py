@@ -266,3 +266,33 @@ def test_law_lookup_outside_its_grid_and_bad_channel():
 
     with pytest.raises(sl.InputError, match="`receptor channel` rows must sum to 1"):
         sl.continuous_signal(stats.uniform(0, 1), [0.0, 0.5, 1.0], receptor=LeakyReceptor())
+
+
+def test_density_dependent_payoff_against_hand_computed_law():
+    # Maximum entropy with two phenotypes is logistic in the payoff difference (Jaynes 1957):
+    # q(divide | y, rho) = 1 / (1 + exp(-beta (u_divide - u_move))). With
+    # u_divide = (1 - rho) y / 4, u_move = 0, beta = 2, by hand: at rho = 0.5, y = 2 the
+    # difference is 0.25 and q = 1 / (1 + e^-0.5) = 0.6224593312018546; at rho = 0.25, y = 4
+    # it is 0.75 and q = 1 / (1 + e^-1.5) = 0.8175744761936437.
+    payoff = {"divide": sl.DensityDependent(lambda v, rho: (1 - rho) * v / 4), "move": sl.Linear(slope=0.0)}
+    law = sl.derive_law(payoff, lambda rho: sl.occupancy(4, rho), densities=[0.0, 0.25, 0.5, 1.0],
+                        beta=2.0, objective="max-entropy")
+    assert law.probs(0.5)[2, 0] == pytest.approx(0.6224593312018546, rel=1e-12)
+    assert law.probs(0.25)[4, 0] == pytest.approx(0.8175744761936437, rel=1e-12)
+    # The mean-field fraction averages over Binomial(4, rho) neighbour counts (scipy.stats).
+    from scipy import stats
+
+    y = np.arange(5)
+    expected = stats.binom.pmf(y, 4, 0.25) @ (1 / (1 + np.exp(-2.0 * 0.75 * y / 4)))
+    assert law.fractions(0.25)[0] == pytest.approx(expected, rel=1e-12)
+    # A fixed environment (no density of its own) is evaluated at each density of the grid.
+    fixed = sl.occupancy(4, 0.5)
+    law_fixed = sl.derive_law(payoff, sl.Environment(states=fixed.states, probs=fixed.probs, values=fixed.values),
+                              densities=[0.0, 1.0], beta=2.0, objective="max-entropy")
+    assert law_fixed.probs(0.0)[4, 0] == pytest.approx(1 / (1 + np.exp(-2.0)), rel=1e-12)
+    assert law_fixed.probs(1.0)[4, 0] == pytest.approx(0.5, rel=1e-12)
+    with pytest.raises(sl.InputError, match=r"payoff\['divide'\]` depends on density"):
+        sl.solve(sl.laws._payoffs.payoff_table(payoff, fixed.__class__(states=fixed.states, probs=fixed.probs,
+                                                                       values=fixed.values))[0], fixed, beta=1.0)
+    with pytest.raises(sl.InputError, match="`function` must be callable"):
+        sl.DensityDependent(3.0)

@@ -47,6 +47,7 @@ _EXPORTS = {
     # laws
     "BINNING_RULES": ".laws",
     "continuous_signal": ".laws",
+    "DensityDependent": ".laws",
     "derive_law": ".laws",
     "empirical": ".laws",
     "Environment": ".laws",
