@@ -296,3 +296,40 @@ def test_density_dependent_payoff_against_hand_computed_law():
                                                                        values=fixed.values))[0], fixed, beta=1.0)
     with pytest.raises(sl.InputError, match="`function` must be callable"):
         sl.DensityDependent(3.0)
+
+
+def test_empirical_with_a_receptor_against_an_independent_computation():
+    # Noisy sensing of a measured signal distribution. Independent computation: the histogram
+    # from numpy.histogram (edges 0, 1, 2, 3, 4), the Gaussian channel from scipy.stats.norm
+    # (the noisy reading of a bin centre falls in sensed bin s; readings beyond the outer edges
+    # count as the end bins), the Poisson channel from scipy.stats.poisson (last state collects
+    # the upper tail), then p(s) = sum_y p(y) W(s | y) (law of total probability).
+    from scipy import stats
+
+    samples = np.array([0.2, 0.7, 1.1, 1.4, 1.9, 2.2, 2.5, 2.6, 3.3, 3.9])
+    edges = np.arange(5.0)
+    p_true = np.histogram(samples, bins=edges)[0] / samples.size
+    centres = np.array([0.5, 1.5, 2.5, 3.5])
+    env = sl.empirical(samples, bins=edges, receptor=sl.GaussianReceptor(sd=0.8))
+    upper = stats.norm.cdf((edges[1:, None] - centres[None, :]) / 0.8)  # P(reading < edge k+1 | y)
+    w = np.empty((4, 4))
+    for y in range(4):
+        below = np.concatenate([[0.0], upper[:-1, y], [1.0]])
+        w[y] = np.diff(below)
+    assert np.allclose(env.true_probs, p_true, atol=1e-15)
+    assert np.allclose(env.channel, w, atol=1e-14)
+    assert np.allclose(env.probs, p_true @ w, atol=1e-14)
+    poisson = sl.empirical(samples, bins=edges, receptor=sl.PoissonReceptor(gain=2.0, max_count=6))
+    k = np.arange(7)
+    wp = stats.poisson.pmf(k[None, :], 2.0 * centres[:, None])
+    wp[:, -1] = stats.poisson.sf(5, 2.0 * centres)
+    assert np.allclose(poisson.probs, p_true @ wp, atol=1e-14)
+    assert np.allclose(poisson.decision_values, k / 2.0)
+    # A law derived on it weighs the posterior payoff: with payoff equal to the true bin centre
+    # for "high" (0 for "low"), E[u | s] = sum_y p(y) W(s|y) v_y / p(s) (Bayes).
+    payoff = {"low": sl.Linear(slope=0.0), "high": sl.Linear(slope=1.0)}
+    law = sl.derive_law(payoff, env, densities=[0.5], beta=1.0, objective="max-entropy")
+    posterior = (p_true[:, None] * w * centres[:, None]).sum(axis=0) / (p_true @ w)
+    assert np.allclose(law.probs(0.5)[:, 1], 1 / (1 + np.exp(-posterior)), atol=1e-10)
+    with pytest.raises(sl.InputError, match="`receptor` must be"):
+        sl.empirical(samples, bins=edges, receptor="gaussian")
