@@ -301,58 +301,76 @@ def _resolve_sweep(flat, cells, rr, ss, xs, event, inside, turn, C, W, N, S, *, 
     ``flat`` (the grid, ``replicates * W``) and ``cells`` are updated in place; ``marks`` is a
     ``(2, replicates * W)`` scratch of vacate / fill turns, ``C`` everywhere on entry and exit.
     """
-    home = rr * W + ss
+    # Sort the acting cells by event once: dividers, movers, deaths, decisions are slices.
+    order = np.argsort(event, kind="stable")
+    rr, ss, xs, inside, turn = rr.take(order), ss.take(order), xs.take(order), inside.take(order), turn.take(order)
+    bounds = np.cumsum(np.bincount(event, minlength=4)).tolist()
+    divide_end, move_end, death_end = bounds[0], bounds[1], bounds[2]
+    home = rr * W + ss if cells.size > 1 else ss
     vacated, filled = marks
-    spreading = np.flatnonzero(event <= 1)
-    sp_home, sp_turn, sp_code = home.take(spreading), turn.take(spreading), xs.take(spreading) + 1
-    moving = event.take(spreading) == 1
-    pick = np.minimum((inside.take(spreading) * N).astype(np.int64), N - 1)
-    target_site = neighbour_flat.take(ss.take(spreading) * N + pick)
-    target = rr.take(spreading) * W + target_site
-    # Beyond a closed edge (column S, always 0) is never free.
-    possible = target_site != S if closed else np.ones(spreading.size, dtype=bool)
-    free_at_start = (flat.take(target) == 0) & possible
-    dying = np.flatnonzero(event == 2)
-    vacated[home.take(dying)] = turn.take(dying)
-    ok = np.zeros(spreading.size, dtype=bool)
-    mover_home, mover_turn = sp_home[moving], sp_turn[moving]
-    for _ in range(C + 1):
-        vacated[mover_home] = np.where(ok[moving], mover_turn, C)
+    sp = slice(0, move_end)
+    sp_home, sp_turn = home[sp], turn[sp]
+    pick = np.minimum((inside[sp] * N).astype(np.int64), N - 1)
+    pick += ss[sp] * N
+    target_site = neighbour_flat.take(pick)
+    target = rr[sp] * W + target_site if cells.size > 1 else target_site
+    free_at_start = flat.take(target) == 0
+    if closed:  # beyond a closed edge (column S, always 0) is never free
+        possible = target_site != S
+        free_at_start &= possible
+    else:
+        possible = True
+    die_home, die_turn = home[move_end:death_end], turn[move_end:death_end]
+    vacated[die_home] = die_turn
+    mover_home, mover_turn = home[divide_end:move_end], turn[divide_end:move_end]
+    # Does any spreader aim at a mover's home? If not, movers' successes matter to no one and
+    # one round is exact; otherwise iterate to the fixed point.
+    filled[mover_home] = -1
+    rounds = C + 1 if mover_home.size and (filled.take(target) < 0).any() else 1
+    filled[mover_home] = C
+    ok = np.zeros(move_end, dtype=bool)
+    for _ in range(rounds):
+        if rounds > 1:
+            vacated[mover_home] = np.where(ok[divide_end:], mover_turn, C)
         # Free at its turn: empty at the start, or vacated by an earlier turn.
         free = free_at_start | (possible & (vacated.take(target) < sp_turn))
         claim = target[free]
         np.minimum.at(filled, claim, sp_turn[free])
         new = free & (filled.take(target) == sp_turn)
         filled[claim] = C
-        if np.array_equal(new, ok):
+        if rounds == 1 or np.array_equal(new, ok):
+            ok = new
             break
         ok = new
     else:  # pragma: no cover - the iteration is exact after C rounds (see above)
         raise RuntimeError("sweep resolution did not settle")
-    vacated[mover_home] = np.where(ok[moving], mover_turn, C)
-    filled[target[ok]] = sp_turn[ok]
+    moved = ok[divide_end:]
+    vacated[mover_home] = np.where(moved, mover_turn, C)
+    target_ok = target[ok]
+    filled[target_ok] = sp_turn[ok]
     # Cells after each class: births minus deaths, by replicate and turn, cumulated over turns.
     R = cells.size
-    born = ok & ~moving
-    change = (np.bincount(rr.take(spreading)[born] * C + sp_turn[born], minlength=R * C)
-              - np.bincount(rr.take(dying) * C + turn.take(dying), minlength=R * C))
-    deciding = np.flatnonzero(event == 3)
-    if deciding.size and rules is not None:
-        dr, dturn = rr.take(deciding), turn.take(deciding)
-        after = cells[dr] + np.cumsum(change.reshape(R, C), axis=1)[dr, dturn]
-        around_sites = across.take(ss.take(deciding), axis=1) + dr * W  # (directions, deciders)
+    born = ok[:divide_end]
+    change = (np.bincount(rr[:divide_end][born] * C + turn[:divide_end][born], minlength=R * C)
+              - np.bincount(rr[move_end:death_end] * C + die_turn, minlength=R * C)).reshape(R, C)
+    new_codes = None
+    if death_end < turn.size and rules is not None:
+        dec = slice(death_end, None)
+        dr, dturn = rr[dec], turn[dec]
+        after = cells.take(dr) + np.cumsum(change, axis=1)[dr, dturn]
+        around_sites = across.take(ss[dec], axis=1)  # (directions, deciders)
+        if R > 1:
+            around_sites += dr * W
         occupied = ((flat.take(around_sites) != 0) & (vacated.take(around_sites) > dturn)) | (
             filled.take(around_sites) < dturn)
-        new_codes = rules.decide_columns(occupied.sum(axis=0), by_count, after, inside.take(deciding)) + 1
-    else:
-        new_codes = None
-    cells += change.reshape(R, C).sum(axis=1)
+        new_codes = rules.decide_columns(occupied.sum(axis=0), by_count, after, inside[dec]) + 1
+    cells += change.sum(axis=1)
     # Write the grid: first every site vacated, then every site filled, then every decision.
-    flat[home.take(dying)] = 0
-    flat[mover_home[ok[moving]]] = 0
-    flat[target[ok]] = sp_code[ok].astype(np.int8)
+    flat[die_home] = 0
+    flat[mover_home[moved]] = 0
+    flat[target_ok] = (xs[sp][ok] + 1).astype(np.int8)
     if new_codes is not None:
-        flat[home.take(deciding)] = new_codes.astype(np.int8)
-    vacated[home.take(dying)] = C
+        flat[home[death_end:]] = new_codes.astype(np.int8)
+    vacated[die_home] = C
     vacated[mover_home] = C
-    filled[target[ok]] = C
+    filled[target_ok] = C
