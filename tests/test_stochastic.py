@@ -706,3 +706,38 @@ def test_sweep_resolved_at_once_equals_class_by_class(neighbourhood, boundary):
         outcomes.append((recorded, *layouts, turns, cells))
     assert all(np.array_equal(a, b) for a, b in zip(*outcomes))
     assert outcomes[0][-1].min() > 0  # the colonies lived: the comparison saw every kind of event
+
+
+@pytest.mark.parametrize("width", [None, 8])
+def test_batched_sweep_draws_are_independent_bernoulli_trials(width):
+    # Several sweeps' draws at once (_SweepDraws.batch), as the engine takes them without
+    # `upper`. References as for one sweep: each site of each sweep is a candidate
+    # independently with probability `top` (binomial closed forms), a candidate's u is uniform
+    # on [0, top) (scipy.stats.kstest), the class ranks are permutations; and a batch draws
+    # from each row's stream the numbers that the same sweeps drawn one by one draw (no row needs
+    # to continue its gaps when width is None, almost surely).
+    from switchlaw.stochastic._streams import Streams
+    from switchlaw.stochastic._sweep import _SweepDraws
+
+    replicates, sites, classes, top, count = 400, 100, 5, 0.3, 6
+    draws = _SweepDraws(Streams(np.random.SeedSequence(8), replicates), replicates, classes, sites, top, width=width)
+    batch = draws.batch(np.ones(replicates, dtype=bool), count)
+    assert len(batch) == count
+    total = 0
+    for rank, rr, ss, u in batch:
+        assert np.array_equal(np.sort(rank, axis=1), np.tile(np.arange(classes), (replicates, 1)))
+        assert np.unique(rr * sites + ss).size == rr.size and ss.min() >= 0 and ss.max() < sites
+        assert u.min() >= 0 and u.max() < top
+        total += rr.size
+    trials = count * replicates * sites
+    assert z_ok(total / trials, top, binomial_se(top, trials))
+    u_all = np.concatenate([b[3] for b in batch])
+    assert stats.kstest(u_all / top, "uniform").pvalue > 1e-4
+    if width is None:
+        one_by_one = _SweepDraws(Streams(np.random.SeedSequence(8), replicates), replicates, classes, sites, top)
+        for rank, rr, ss, u in batch:
+            rank1, rr1, ss1, u1 = one_by_one.sweep(np.ones(replicates, dtype=bool))
+            order, order1 = np.lexsort((ss, rr)), np.lexsort((ss1, rr1))
+            assert np.array_equal(rank, rank1)
+            assert np.array_equal(rr[order], rr1[order1]) and np.array_equal(ss[order], ss1[order1])
+            assert np.array_equal(u[order], u1[order1])

@@ -30,6 +30,11 @@ from ._rules import Rules, event_index
 from ._streams import Streams
 
 
+#: Sweeps whose random numbers are drawn at once (without ``upper``), and the most uniform
+#: numbers such a batch may hold (16 MB).
+_BATCH = 32
+_BATCH_NUMBERS = 2_000_000
+
 #: Processing order of events within a class: divide, move, die, decide (so that dividers and
 #: movers, which both look for a free neighbour, form one slice). Indexed by event code.
 _ORDER = np.array([0, 2, 1, 3, 3])
@@ -109,6 +114,53 @@ class _SweepDraws:
             ss = np.concatenate([ss] + [e[0] for e in extra])
             u = np.concatenate([u] + [e[1] for e in extra])
         return self.rank, rr, ss, u
+
+    def batch(self, active: np.ndarray, count: int) -> list:
+        """The draws of ``count`` sweeps at once, as a list of what :meth:`sweep` returns.
+
+        The same joint law as ``count`` calls of :meth:`sweep`: every block with an ``active``
+        row draws ``count`` sweeps' uniforms from its own stream in one call (so a row's numbers
+        still depend only on its own block's history), and the ranks, gaps and candidates of all
+        of them are formed together. Rows that die out within the batch keep their candidates;
+        the caller finds no cell there.
+        """
+        streams, C, w, S = self.streams, self.classes, self.width, self.sites
+        block, wide = streams.block, C + 2 * w
+        blocks = np.flatnonzero(active.reshape(-1, block).any(axis=1))
+        rows = streams.rows(blocks)
+        part = np.empty((rows.size, count, wide))
+        for i, b in enumerate(blocks.tolist()):
+            part[i * block:(i + 1) * block] = streams.generators[b].random((count, block, wide)).transpose(1, 0, 2)
+        ranks = np.zeros((self.rank.shape[0], count, C), dtype=np.int64)
+        ranks[rows] = np.argsort(np.argsort(part[:, :, :C], axis=2), axis=2)
+        gap = np.log1p(-part[:, :, C:C + w])
+        gap *= self.scale
+        np.minimum(gap, S, out=gap)
+        position = gap.astype(np.int64)
+        np.cumsum(position, axis=2, out=position)
+        position += self.steps
+        at = np.flatnonzero(position < S)
+        ss = position.reshape(-1).take(at)
+        rk = at // w  # (row, sweep) pair, row-major
+        u = part.reshape(-1).take(at + rk * (C + w) + (C + w))
+        u *= self.top
+        kk = rk % count
+        rr = rows[rk // count]
+        # Rows whose run of gaps stopped short of the last site continue it (rare).
+        short = np.flatnonzero(position[:, :, -1].reshape(-1) < S - 1)
+        if short.size:
+            last = position[:, :, -1].reshape(-1)
+            pieces = [(rows[p // count], p % count, self._extend(int(rows[p // count]), float(last[p])))
+                      for p in short.tolist()]
+            rr = np.concatenate([rr] + [np.full(e[0].size, r) for r, _, e in pieces])
+            kk = np.concatenate([kk] + [np.full(e[0].size, k) for _, k, e in pieces])
+            ss = np.concatenate([ss] + [e[0] for _, _, e in pieces])
+            u = np.concatenate([u] + [e[1] for _, _, e in pieces])
+        order = np.argsort(kk, kind="stable")
+        rr, ss, u = rr.take(order), ss.take(order), u.take(order)
+        bounds = [0] + np.cumsum(np.bincount(kk, minlength=count)).tolist()
+        return [(ranks[:, k], rr[bounds[k]:bounds[k + 1]], ss[bounds[k]:bounds[k + 1]], u[bounds[k]:bounds[k + 1]])
+                for k in range(count)]
 
     def _extend(self, row: int, last: float):
         """Candidates of ``row`` beyond site ``last``: more gaps from the row's own stream."""
@@ -200,7 +252,8 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         chance = np.concatenate([[0.0], -np.expm1(-total * dt)])  # indexed by code
         top_chance = float(chance.max())
         draws = _SweepDraws(streams, R, C, S, top_chance) if sweeps and top_chance > 0 else None
-        for _ in range(sweeps):
+        pending = []
+        for done in range(sweeps):
             if upper is not None and (frozen | (cells == 0)).all():
                 break
             live = ~frozen
@@ -209,7 +262,13 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
                 continue
             # Candidates: the turns whose uniform falls below the largest chance (few); then
             # each is held against its own cell's chance.
-            rank, rr, ss, u_now = draws.sweep(live & (cells > 0))
+            if marks is None:
+                rank, rr, ss, u_now = draws.sweep(live & (cells > 0))
+            else:
+                if not pending:  # the next few sweeps' draws at once (see _SweepDraws.batch)
+                    count = max(1, min(_BATCH, sweeps - done, _BATCH_NUMBERS // (R * (C + 2 * draws.width))))
+                    pending = draws.batch(cells > 0, count)[::-1]
+                rank, rr, ss, u_now = pending.pop()
             codes_now = flat[rr * W + ss] if R > 1 else flat[ss]
             chosen = u_now < chance[codes_now]
             if not live.all():
