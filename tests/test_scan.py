@@ -427,3 +427,14 @@ def test_errors_inside_the_function_name_the_point():
     with pytest.raises(ZeroDivisionError, match="three is not allowed") as caught:
         sa.scan(fails_at_three, {"x": np.arange(5.0)}, progress=False)
     assert "at item 3, point {'x': 3.0}" in "\n".join(caught.value.__notes__)
+
+
+def test_dask_executor_without_distributed_is_a_one_line_error(monkeypatch):
+    # dask.distributed is an optional dependency (`switchlaw[dask]`): without it, naming a
+    # scheduler is an InputError that says what to install (common practice, no source).
+    from switchlaw.analysis._dask import DaskExecutor
+    from switchlaw.analysis._targets import Target
+
+    monkeypatch.setitem(sys.modules, "distributed", None)  # import distributed -> ImportError
+    with pytest.raises(sl.InputError, match=r"switchlaw\[dask\]"):
+        DaskExecutor.connect(Target("address", "tcp://127.0.0.1:1"), abs)

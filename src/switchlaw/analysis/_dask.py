@@ -38,7 +38,13 @@ class DaskExecutor:
 
     @classmethod
     def connect(cls, target: Target, function) -> "DaskExecutor":
-        from distributed import Client
+        try:
+            from distributed import Client
+        except ImportError:
+            raise InputError(
+                "`executor`: a Dask scheduler needs dask.distributed, an optional dependency: "
+                "pip install 'switchlaw[dask]'"
+            ) from None
 
         if target.kind == "client":
             client, owned = target.value, False
