@@ -30,10 +30,17 @@ from ._rules import Rules, event_index
 from ._streams import Streams
 
 
-#: Sweeps whose random numbers are drawn at once (without ``upper``), and the most uniform
-#: numbers such a batch may hold (16 MB).
+#: Sites (replicates x lattice sites) up to which the classes of a sweep are resolved at once
+#: (:func:`_resolve_sweep`: a fixed number of numpy passes per sweep, which pays where the
+#: passes of the class-by-class loop are short); larger problems go class by class, which
+#: moves less memory. Measured at 64 x 64 (benchmarks/bench_stochastic.py): at once is faster
+#: up to about 4 replicates, class by class from about 16.
+_AT_ONCE_SITES = 16_384
+#: Sweeps whose random numbers are drawn at once for a single lattice resolved at once (more
+#: replicates gain nothing measurable from it), and the most uniform numbers such a batch may
+#: hold (512 kB, so that it stays in cache).
 _BATCH = 32
-_BATCH_NUMBERS = 2_000_000
+_BATCH_NUMBERS = 65_536
 
 #: Processing order of events within a class: divide, move, die, decide (so that dividers and
 #: movers, which both look for a free neighbour, form one slice). Indexed by event code.
@@ -116,29 +123,37 @@ class _SweepDraws:
         return self.rank, rr, ss, u
 
     def batch(self, active: np.ndarray, count: int) -> list:
-        """The draws of ``count`` sweeps at once, as a list of what :meth:`sweep` returns.
+        """The draws of ``count`` sweeps at once: exactly what ``count`` calls of :meth:`sweep`
+        with these ``active`` rows return, as a list.
 
-        The same joint law as ``count`` calls of :meth:`sweep`: every block with an ``active``
-        row draws ``count`` sweeps' uniforms from its own stream in one call (so a row's numbers
-        still depend only on its own block's history), and the ranks, gaps and candidates of all
-        of them are formed together. Rows that die out within the batch keep their candidates;
-        the caller finds no cell there.
+        Every block with an ``active`` row draws ``count`` sweeps' uniforms from its own stream
+        in one call, in the order the single sweeps would, and the ranks, gaps and candidates
+        of all of them are formed together. If a row's run of gaps stops short of the last
+        site (rare: the width covers 5 standard deviations), its continuation would come from
+        the stream in between two sweeps; then the streams are rewound and the sweeps drawn one
+        by one. (Rows that die out within the batch keep their draws; the caller finds no cell
+        there, as it would find none in later sweeps.)
         """
         streams, C, w, S = self.streams, self.classes, self.width, self.sites
         block, wide = streams.block, C + 2 * w
         blocks = np.flatnonzero(active.reshape(-1, block).any(axis=1))
+        saved = [streams.generators[b].bit_generator.state for b in blocks.tolist()]
         rows = streams.rows(blocks)
         part = np.empty((rows.size, count, wide))
         for i, b in enumerate(blocks.tolist()):
             part[i * block:(i + 1) * block] = streams.generators[b].random((count, block, wide)).transpose(1, 0, 2)
-        ranks = np.zeros((self.rank.shape[0], count, C), dtype=np.int64)
-        ranks[rows] = np.argsort(np.argsort(part[:, :, :C], axis=2), axis=2)
         gap = np.log1p(-part[:, :, C:C + w])
         gap *= self.scale
         np.minimum(gap, S, out=gap)
         position = gap.astype(np.int64)
         np.cumsum(position, axis=2, out=position)
         position += self.steps
+        if (position[:, :, -1] < S - 1).any():
+            for b, state in zip(blocks.tolist(), saved):
+                streams.generators[b].bit_generator.state = state
+            return [tuple(x.copy() for x in self.sweep(active)) for _ in range(count)]
+        ranks = np.zeros((self.rank.shape[0], count, C), dtype=np.int64)
+        ranks[rows] = np.argsort(np.argsort(part[:, :, :C], axis=2), axis=2)
         at = np.flatnonzero(position < S)
         ss = position.reshape(-1).take(at)
         rk = at // w  # (row, sweep) pair, row-major
@@ -146,16 +161,6 @@ class _SweepDraws:
         u *= self.top
         kk = rk % count
         rr = rows[rk // count]
-        # Rows whose run of gaps stopped short of the last site continue it (rare).
-        short = np.flatnonzero(position[:, :, -1].reshape(-1) < S - 1)
-        if short.size:
-            last = position[:, :, -1].reshape(-1)
-            pieces = [(rows[p // count], p % count, self._extend(int(rows[p // count]), float(last[p])))
-                      for p in short.tolist()]
-            rr = np.concatenate([rr] + [np.full(e[0].size, r) for r, _, e in pieces])
-            kk = np.concatenate([kk] + [np.full(e[0].size, k) for _, k, e in pieces])
-            ss = np.concatenate([ss] + [e[0] for _, _, e in pieces])
-            u = np.concatenate([u] + [e[1] for _, _, e in pieces])
         order = np.argsort(kk, kind="stable")
         rr, ss, u = rr.take(order), ss.take(order), u.take(order)
         bounds = [0] + np.cumsum(np.bincount(kk, minlength=count)).tolist()
@@ -194,8 +199,9 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         A replicate stops (frozen) once it holds this many cells (checked after every class,
         so the classes are taken one after another).
     by_class : bool
-        Take the classes one after another even without ``upper`` (the same outcome as the
-        default, which resolves all classes of a sweep at once with :func:`_resolve_sweep`).
+        Take the classes one after another even on a small problem (the same outcome as
+        resolving all classes of a sweep at once with :func:`_resolve_sweep`, which is the
+        default up to :data:`_AT_ONCE_SITES` sites without ``upper``).
 
     Returns
     -------
@@ -243,7 +249,8 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
 
     # Per-site marks of the at-once resolution (:func:`_resolve_sweep`): when the site is vacated
     # and when it is filled, as a class turn; C means never. Reset after every sweep.
-    marks = None if upper is not None or by_class else np.full((2, R * W), C, dtype=np.int64)
+    at_once = upper is None and not by_class and R * S <= _AT_ONCE_SITES
+    marks = np.full((2, R * W), C, dtype=np.int64) if at_once else None
     now = 0.0
     for k, t_out in enumerate(times):
         span = t_out - now
@@ -262,7 +269,7 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
                 continue
             # Candidates: the turns whose uniform falls below the largest chance (few); then
             # each is held against its own cell's chance.
-            if marks is None:
+            if R > 1 or marks is None:  # one lattice: several sweeps' draws at once
                 rank, rr, ss, u_now = draws.sweep(live & (cells > 0))
             else:
                 if not pending:  # the next few sweeps' draws at once (see _SweepDraws.batch)
@@ -280,7 +287,7 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
             xs = codes_now.take(acting).astype(np.int64) - 1
             event, inside = event_index(xs, u_now / chance[xs + 1], share, lower)
             event = _ORDER[np.minimum(event, last_event[xs])]
-            if upper is None and not by_class:
+            if at_once:
                 # No replicate can freeze inside the sweep: resolve every class at once.
                 _resolve_sweep(flat, cells, rr, ss, xs, event, inside, rank[rr, label[ss]], C, W, N, S,
                                neighbour_flat=neighbour_flat, across=across, closed=closed,
