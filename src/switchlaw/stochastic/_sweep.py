@@ -263,14 +263,14 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         for done in range(sweeps):
             if upper is not None and (frozen | (cells == 0)).all():
                 break
-            live = ~frozen
-            turns += int(cells[live].sum())
+            live = None if upper is None else ~frozen
+            turns += int(cells.sum() if live is None else cells[live].sum())
             if draws is None:
                 continue
             # Candidates: the turns whose uniform falls below the largest chance (few); then
             # each is held against its own cell's chance.
             if R > 1 or marks is None:  # one lattice: several sweeps' draws at once
-                rank, rr, ss, u_now = draws.sweep(live & (cells > 0))
+                rank, rr, ss, u_now = draws.sweep(cells > 0 if live is None else live & (cells > 0))
             else:
                 if not pending:  # the next few sweeps' draws at once (see _SweepDraws.batch)
                     count = max(1, min(_BATCH, sweeps - done, _BATCH_NUMBERS // (R * (C + 2 * draws.width))))
@@ -278,7 +278,7 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
                 rank, rr, ss, u_now = pending.pop()
             codes_now = flat[rr * W + ss] if R > 1 else flat[ss]
             chosen = u_now < chance[codes_now]
-            if not live.all():
+            if live is not None and not live.all():
                 chosen &= live[rr]
             acting = np.flatnonzero(chosen)
             if acting.size == 0:
@@ -289,7 +289,8 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
             event = _ORDER[np.minimum(event, last_event[xs])]
             if at_once:
                 # No replicate can freeze inside the sweep: resolve every class at once.
-                _resolve_sweep(flat, cells, rr, ss, xs, event, inside, rank[rr, label[ss]], C, W, N, S,
+                turn = rank[0].take(label.take(ss)) if R == 1 else rank[rr, label[ss]]
+                _resolve_sweep(flat, cells, rr, ss, xs, event, inside, turn, C, W, N, S,
                                neighbour_flat=neighbour_flat, across=across, closed=closed,
                                rules=rules if deciding else None, by_count=by_count, marks=marks)
                 continue
