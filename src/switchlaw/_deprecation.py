@@ -27,7 +27,8 @@ def renamed_keyword(old: str, new: str, *, since: str = "0.2"):
 
 
 def renamed_attribute(module_name: str, renamed: dict[str, str], namespace: dict, *, since: str = "0.2"):
-    """A PEP 562 ``__getattr__`` for a module whose names in ``renamed`` (old -> new) moved.
+    """A PEP 562 ``__getattr__`` for a module whose names in ``renamed`` (old -> new) moved;
+    ``namespace`` is the module's ``globals()``, which holds the new names.
 
     The old name returns the new object and warns each time (nothing is cached under it).
     """
@@ -36,8 +37,7 @@ def renamed_attribute(module_name: str, renamed: dict[str, str], namespace: dict
         if name in renamed:
             warnings.warn(f"`{module_name}.{name}` is deprecated since {since}; use `{renamed[name]}`",
                           DeprecationWarning, stacklevel=2)
-            return namespace[renamed[name]] if renamed[name] in namespace else getattr(
-                __import__(module_name, fromlist=[renamed[name]]), renamed[name])
+            return namespace[renamed[name]]
         raise AttributeError(f"module {module_name!r} has no attribute {name!r}")
 
     return __getattr__
