@@ -77,13 +77,13 @@ def verdict(ok: bool) -> str:
 def sensing_problem(rng: np.random.Generator):
     """3 environments x 3 phenotypes: each phenotype thrives in one environment."""
     fitness = np.diag(rng.uniform(2.0, 3.0, size=3)) + rng.uniform(0.1, 0.6, size=(3, 3))
-    env = rng.dirichlet(np.full(3, 3.0))
-    return fitness, env, growth.symmetric_cue(3, 0.2)
+    habitat = rng.dirichlet(np.full(3, 3.0))
+    return fitness, habitat, growth.symmetric_cue(3, 0.2)
 
 
-def loop_of_solves(fitness, env, cue, betas):
+def loop_of_solves(fitness, habitat, cue, betas):
     """Baseline: one cold ``switchlaw.solve`` per beta and the growth formula in numpy."""
-    joint = env[:, None] * cue
+    joint = habitat[:, None] * cue
     cue_probs = joint.sum(axis=0)
     payoff = (joint / cue_probs).T @ fitness
     curve = np.empty(betas.size)
@@ -93,9 +93,9 @@ def loop_of_solves(fitness, env, cue, betas):
     return curve
 
 
-def slsqp_hedging(fitness, env, cue):
+def slsqp_hedging(fitness, habitat, cue):
     """Baseline: scipy SLSQP on the simplex for each cue state."""
-    joint = env[:, None] * cue
+    joint = habitat[:, None] * cue
     total = 0.0
     n = fitness.shape[1]
     for c in range(cue.shape[1]):
@@ -111,14 +111,14 @@ def slsqp_hedging(fitness, env, cue):
 
 
 def section_curve(rng: np.random.Generator, repeats: int) -> bool:
-    fitness, env, cue = sensing_problem(rng)
+    fitness, habitat, cue = sensing_problem(rng)
     betas = np.geomspace(0.01, 100.0, 200)
     fast, scan = median_seconds(
-        lambda: growth.sensing_tradeoff(fitness, env, cue, betas, cost_per_bit=0.02), repeats)
-    slow, curve = median_seconds(lambda: loop_of_solves(fitness, env, cue, betas), repeats)
+        lambda: growth.sensing_tradeoff(fitness, habitat, cue, betas, cost_per_bit=0.02), repeats)
+    slow, curve = median_seconds(lambda: loop_of_solves(fitness, habitat, cue, betas), repeats)
     error = float(np.abs(scan.growth_rate - curve).max())
     print("1. Growth-rate curve over 200 betas, 3 environments x 3 phenotypes, noisy cue "
-          f"(I(E;C) = {switchlaw.mutual_information(env, cue, unit='bits'):.3f} bits)")
+          f"(I(E;C) = {switchlaw.mutual_information(habitat, cue, unit='bits'):.3f} bits)")
     row("sensing_tradeoff (warm-started tradeoff + formula)", fast)
     row("loop: switchlaw.solve per beta + numpy growth", slow,
         f"= {slow / fast:.1f}x sensing_tradeoff")
@@ -126,8 +126,8 @@ def section_curve(rng: np.random.Generator, repeats: int) -> bool:
           f"(target {CURVE_TOLERANCE:g}): {verdict(error <= CURVE_TOLERANCE)}")
     print(f"   best beta {scan.best_beta:.4g} at 0.02 nats/bit: growth "
           f"{scan.best_growth_rate:.6f}, I {scan.best_information_bits:.4f} bits")
-    hedge_fast, optimum = median_seconds(lambda: growth.bet_hedging(fitness, env, cue=cue), repeats)
-    hedge_slow, reference = median_seconds(lambda: slsqp_hedging(fitness, env, cue), repeats)
+    hedge_fast, optimum = median_seconds(lambda: growth.bet_hedging(fitness, habitat, cue=cue), repeats)
+    hedge_slow, reference = median_seconds(lambda: slsqp_hedging(fitness, habitat, cue), repeats)
     gap = optimum.growth_rate - reference
     print(f"   growth-optimal policy with the cue: {optimum.growth_rate:.10f} nats/generation "
           f"(best law reaches {scan.best_growth_rate / optimum.growth_rate:.4f} of it)")
@@ -141,19 +141,19 @@ def section_curve(rng: np.random.Generator, repeats: int) -> bool:
 # --------------------------------------------------------------------------- section 2
 
 
-def ode_rate(matrices, env, *, settle: float, max_periods: int = 400):
+def ode_rate(matrices, habitat, *, settle: float, max_periods: int = 400):
     """Baseline: integrate period after period until the per-period growth settles."""
     n = np.full(matrices.shape[1], 1.0 / matrices.shape[1])
     previous, rate, periods = math.inf, math.nan, 0
     for periods in range(1, max_periods + 1):
         log_growth = 0.0
-        for e, duration in zip(env.states, env.durations):
+        for e, duration in zip(habitat.states, habitat.durations):
             solution = solve_ivp(lambda t, y, a=matrices[e]: a @ y, (0.0, duration), n,
                                  method="DOP853", rtol=1e-10, atol=1e-12)
             n = solution.y[:, -1]
             log_growth += math.log(n.sum())
             n = n / n.sum()
-        rate = log_growth / env.period
+        rate = log_growth / habitat.period
         if abs(rate - previous) < settle:
             break
         previous = rate
@@ -164,12 +164,12 @@ def section_periodic(rng: np.random.Generator, repeats: int) -> bool:
     rates = rng.normal(0.0, 0.8, size=(3, 3))
     switching = rng.uniform(0.0, 0.1, size=(3, 3))
     np.fill_diagonal(switching, 0.0)
-    env = growth.PeriodicEnvironment([0, 1, 2, 1], [5.0, 2.0, 3.0, 1.5])
-    fast, exact = median_seconds(lambda: growth.continuous_growth(rates, switching, env), repeats)
+    habitat = growth.PeriodicHabitat([0, 1, 2, 1], [5.0, 2.0, 3.0, 1.5])
+    fast, exact = median_seconds(lambda: growth.continuous_growth(rates, switching, habitat), repeats)
     generators = np.broadcast_to(switching - np.diag(switching.sum(axis=1)), (3, 3, 3))
     matrices = growth_matrices(rates, np.array(generators))
     slow, (reference, periods) = median_seconds(
-        lambda: ode_rate(matrices, env, settle=1e-10), max(1, repeats // 3))
+        lambda: ode_rate(matrices, habitat, settle=1e-10), max(1, repeats // 3))
     difference = abs(exact.rate - reference)
     print("2. Periodic environment (3 states, 4 segments), 3 phenotypes with switching")
     row("exact: log spectral radius of product of expm / period", fast)
@@ -187,8 +187,8 @@ def section_markov(rng: np.random.Generator, repeats: int, epochs: int) -> bool:
     rates = rng.normal(0.0, 0.8, size=(3, 3))
     switching = rng.uniform(0.0, 0.2, size=(3, 3))
     np.fill_diagonal(switching, 0.0)
-    env = growth.SwitchingEnvironment(rng.uniform(0.05, 0.5, size=(3, 3)) * (1 - np.eye(3)))
-    states, durations = env.sample(epochs, seed=rng)
+    habitat = growth.SwitchingHabitat(rng.uniform(0.05, 0.5, size=(3, 3)) * (1 - np.eye(3)))
+    states, durations = habitat.sample(epochs, seed=rng)
     generators = np.broadcast_to(switching - np.diag(switching.sum(axis=1)), (3, 3, 3))
     matrices = growth_matrices(rates, np.array(generators))
     shifts = np.array([principal_eigenvalue(a) for a in matrices])
@@ -199,7 +199,7 @@ def section_markov(rng: np.random.Generator, repeats: int, epochs: int) -> bool:
         max(1, repeats // 3))
     difference = float(np.abs(by_eigen - by_expm).max())
     whole, estimate = median_seconds(
-        lambda: growth.continuous_growth(rates, switching, env, epochs=epochs, seed=1), repeats)
+        lambda: growth.continuous_growth(rates, switching, habitat, epochs=epochs, seed=1), repeats)
     print(f"3. Switching (Markov) environment, {epochs} epochs, 3 states x 3 phenotypes")
     row("propagators by one diagonalisation per state", fast)
     row("scipy.linalg.expm per epoch", slow, f"= {slow / fast:.0f}x diagonalisation")

@@ -5,15 +5,19 @@
    same reactions, one replicate at a time; and of the exact jump chain behind
    simulate_hitting.
 2. Lattice: cell turns ("site updates") per second of the vectorised sweep engine against a
-   straightforward per-cell Python loop of the same sweep rules (same classes, same per-turn
-   probabilities, same law), on several lattice sizes and replicate counts. Every ratio is
-   printed. Target: >= 50x on the configurations users run at scale, batched replicates (as in
-   an extinction curve or an ensemble) and large single lattices; the script exits with status 1
-   if any of those misses it. A single 64 x 64 lattice is informational only: each sweep makes
-   a fixed number of numpy passes (per class and per event), whose call overhead is not
-   amortised over 4096 sites.
+   plain but sensible per-cell Python loop of the same sweep rules, written below in this file
+   (:func:`python_sweeps`: lists, not arrays; one uniform per turn; neighbours looked up in a
+   precomputed table; same classes, same per-turn probabilities, same law). Every ratio is
+   printed. Targets: >= 20x at 64 x 64, on one lattice and with replicates batched in one array;
+   >= 50x on the configurations users run at scale (batched replicates, large single
+   lattices). The script exits with status 1 if a target is missed. The engine resolves all
+   classes of a sweep at once (a fixed number of numpy passes per sweep), so a small single
+   lattice pays that fixed cost over fewer sites than a batch does.
 3. An extinction curve of 10 initial colony sizes x 1000 replicates on a 64 x 64 lattice
    (exact continuous-time engine). Target: a few minutes on 2 cores.
+4. Install size: the bytes each installed distribution occupies in site-packages (from its
+   RECORD, via importlib.metadata), for switchlaw's direct dependencies, each with everything
+   it pulls in, and the whole site-packages folder.
 
 Scenario (invented, demo values): go-or-grow cells on a von Neumann lattice; dividing pays in
 crowded neighbourhoods, moving when isolated (max-entropy law, beta = 3).
@@ -196,12 +200,12 @@ def section_ssa(law, quick: bool) -> None:
 def section_lattice(law, quick: bool) -> bool:
     print("2. Lattice sweeps: cell turns per second, vectorised engine vs per-cell Python loop")
     print("   (density 0.5 at the start, default sweep dt = 0.1 / R; medians of 5 runs, the two engines timed in turn)")
-    # (shape, replicates, held to the 50x target)
-    cases = [((64, 64), 1, False), ((64, 64), 64, True), ((60, 60), 64, True), ((255, 255), 1, True)]
+    # (shape, replicates, target ratio)
+    cases = [((64, 64), 1, 20), ((64, 64), 16, 20), ((64, 64), 64, 50), ((60, 60), 64, 50), ((255, 255), 1, 50)]
     if not quick:
-        cases += [((64, 64), 256, True), ((510, 510), 1, True), ((120, 120), 16, True)]
-    passed = []
-    for shape, replicates, gated in cases:
+        cases += [((64, 64), 256, 50), ((510, 510), 1, 50), ((120, 120), 16, 50)]
+    results = []
+    for shape, replicates, target in cases:
         lattice = Lattice(shape)
         lattice.classes  # colour the lattice once (cached), outside the timings
         model = LatticeModel(lattice, division=[1.0, 0.0], death=[0.2, 0.2], motility=[0.0, 1.0], law=law, tau=0.5)
@@ -217,13 +221,10 @@ def section_lattice(law, quick: bool) -> bool:
         vector_rate = run.site_updates / seconds
         loop_rate = turns / loop_seconds
         ratio = vector_rate / loop_rate
-        if gated:
-            passed.append((f"{shape[0]} x {shape[1]} x {replicates}", ratio))
-            verdict = "PASS" if ratio >= 50 else "FAIL: below 50x"
-        else:
-            verdict = "informational: fixed numpy overhead per pass dominates a 4096-site lattice"
+        results.append((f"{shape[0]} x {shape[1]} x {replicates}", ratio, target))
+        verdict = "PASS" if ratio >= target else f"FAIL: below {target}x"
         print(f"   {shape[0]} x {shape[1]} x {replicates:>3} replicates: vectorised {vector_rate / 1e6:6.2f} M turns/s, "
-              f"loop {loop_rate / 1e6:5.3f} M turns/s, ratio {ratio:6.1f}x  [{verdict}]")
+              f"loop {loop_rate / 1e6:5.3f} M turns/s, ratio {ratio:6.1f}x  [target {target}x: {verdict}]")
     # Same rules: mean density after the same time from the same start, both engines.
     lattice = Lattice((48, 48))
     model = LatticeModel(lattice, division=[1.0, 0.0], death=[0.2, 0.2], motility=[0.0, 1.0], law=law, tau=0.5)
@@ -235,9 +236,8 @@ def section_lattice(law, quick: bool) -> bool:
     print(f"   same rules, 48 x 48 after 60 sweeps: mean density vectorised {run.density[:, 0].mean():.4f} "
           f"(sd {run.density[:, 0].std(ddof=1):.4f}), loop {np.mean(loops):.4f} (sd {np.std(loops, ddof=1):.4f}), "
           f"{reps} runs each")
-    met = [name for name, ratio in passed if ratio >= 50]
-    missed = [f"{name} ({ratio:.0f}x)" for name, ratio in passed if ratio < 50]
-    print(f"   target 50x (batched replicates, large lattices) met on {len(met)} of {len(passed)} configurations"
+    missed = [f"{name} ({ratio:.0f}x < {target}x)" for name, ratio, target in results if ratio < target]
+    print(f"   targets met on {len(results) - len(missed)} of {len(results)} configurations"
           + (f"; not on {', '.join(missed)}" if missed else ""))
     return not missed
 
@@ -259,16 +259,78 @@ def section_extinction(law, quick: bool) -> bool:
     return seconds < 180
 
 
+def section_install_size() -> None:
+    """What each direct dependency costs on disk, and what leaving it out of the core set would free."""
+    import sysconfig
+    from importlib import metadata
+    from pathlib import Path
+
+    from packaging.requirements import Requirement  # installed with dask and xarray
+    from packaging.utils import canonicalize_name
+
+    print("4. Install size (site-packages of this environment; each distribution's files from its RECORD)")
+    dists = {canonicalize_name(d.metadata["Name"]): d for d in metadata.distributions()}
+
+    def size(name):
+        total = 0
+        for file in dists[name].files or ():
+            path = file.locate()
+            total += path.stat().st_size if path.is_file() else 0
+        return total
+
+    def closure(requirement: Requirement, found=None):
+        """Installed distributions a requirement pulls in, its extras and markers honoured."""
+        found = set() if found is None else found
+        name = canonicalize_name(requirement.name)
+        if name in found or name not in dists:
+            return found
+        found.add(name)
+        for line in dists[name].requires or ():
+            need = Requirement(line)
+            wanted = [{"extra": extra} for extra in requirement.extras] or [{"extra": ""}]
+            if need.marker is None or any(need.marker.evaluate(env) for env in wanted):
+                closure(need, found)
+        return found
+
+    direct = [Requirement(line) for line in metadata.requires("switchlaw") or ()]
+    groups = {}
+    for requirement in direct:
+        extra = next((str(m) for m in [requirement.marker] if m is not None), "")
+        groups[requirement] = extra.split('"')[1] if '"' in extra else "core"
+    pulled = {r: closure(r) for r in direct}
+    core = set().union(*(pulled[r] for r in direct if groups[r] == "core"))
+    rows = []
+    for r in direct:
+        others = set().union(*(pulled[o] for o in direct if groups[o] == "core" and o is not r))
+        only = pulled[r] - others  # what no other core dependency needs
+        rows.append((sum(size(n) for n in pulled[r]), sum(size(n) for n in only), r, groups[r]))
+    print(f"   {'dependency':<28} {'group':>5} {'with all it pulls in':>21} {'needed by it alone':>19}")
+    for total, alone, r, group in sorted(rows, key=lambda row: -row[1]):
+        print(f"   {str(r.name) + ('[' + ','.join(sorted(r.extras)) + ']' if r.extras else ''):<28} {group:>5} "
+              f"{total / 2**20:17.1f} MiB {alone / 2**20:15.1f} MiB")
+    site = Path(sysconfig.get_paths()["purelib"])
+    folder = sum(p.stat().st_size for p in site.rglob("*") if p.is_file() and not p.is_symlink())
+    print(f"   core set (pip install switchlaw): {sum(size(n) for n in core) / 2**20:.0f} MiB in "
+          f"{len(core)} distributions; the whole site-packages folder ({site}): {folder / 2**20:.0f} MiB")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="smaller runs")
+    parser.add_argument("--only", choices=("ssa", "lattice", "extinction", "install"), help="run one section")
     args = parser.parse_args()
     print(f"switchlaw {sl.__version__}: stochastic benchmark ({'quick' if args.quick else 'full'} run)")
     law = make_law()
-    section_ssa(law, args.quick)
-    lattice_ok = section_lattice(law, args.quick)
-    extinction_ok = section_extinction(law, args.quick)
-    raise SystemExit(0 if lattice_ok and extinction_ok else 1)
+    ok = True
+    if args.only in (None, "ssa"):
+        section_ssa(law, args.quick)
+    if args.only in (None, "lattice"):
+        ok &= section_lattice(law, args.quick)
+    if args.only in (None, "extinction"):
+        ok &= section_extinction(law, args.quick)
+    if args.only in (None, "install"):
+        section_install_size()
+    raise SystemExit(0 if ok else 1)
 
 
 if __name__ == "__main__":

@@ -29,14 +29,14 @@ LN2 = math.log(2.0)
 def random_problem(rng, m=3, n=3, k=3):
     """Random fitness, environment and cue (fixed seeds: reproducible)."""
     fitness = rng.gamma(1.0, size=(m, n))
-    env = rng.dirichlet(np.ones(m))
+    habitat = rng.dirichlet(np.ones(m))
     cue = rng.dirichlet(np.ones(k), size=m)
-    return fitness, env, cue
+    return fitness, habitat, cue
 
 
-def mutual_information_scipy(env, cue):
+def mutual_information_scipy(habitat, cue):
     """I(E;C) = H(C) - H(C|E) with scipy.stats.entropy (nats)."""
-    return entropy(env @ cue) - float(env @ [entropy(row) for row in cue])
+    return entropy(habitat @ cue) - float(habitat @ [entropy(row) for row in cue])
 
 
 # --------------------------------------------------------------------------- growth_rate
@@ -45,19 +45,19 @@ def mutual_information_scipy(env, cue):
 def test_growth_rate_is_log_of_weighted_geometric_mean(rng):
     # Long-run growth is the log of the geometric mean of the per-generation growth factors
     # (Lewontin & Cohen 1969); scipy.stats.gmean with weights p(e) is the reference.
-    fitness, env, _ = random_problem(rng)
+    fitness, habitat, _ = random_problem(rng)
     strategy = rng.dirichlet(np.ones(3))
-    expected = math.log(gmean(fitness @ strategy, weights=env))
-    assert gr.growth_rate(fitness, env, strategy) == pytest.approx(expected, abs=1e-13)
+    expected = math.log(gmean(fitness @ strategy, weights=habitat))
+    assert gr.growth_rate(fitness, habitat, strategy) == pytest.approx(expected, abs=1e-13)
 
 
 def test_growth_rate_with_cue_is_geometric_mean_over_environment_and_cue(rng):
     # Same reference over the pairs (e, c), weights p(e) P(c|e) (Donaldson-Matasci et al. 2010).
-    fitness, env, cue = random_problem(rng)
+    fitness, habitat, cue = random_problem(rng)
     policy = rng.dirichlet(np.ones(3), size=3)
     factors = fitness @ policy.T
-    expected = math.log(gmean(factors.ravel(), weights=(env[:, None] * cue).ravel()))
-    assert gr.growth_rate(fitness, env, policy, cue=cue) == pytest.approx(expected, abs=1e-13)
+    expected = math.log(gmean(factors.ravel(), weights=(habitat[:, None] * cue).ravel()))
+    assert gr.growth_rate(fitness, habitat, policy, cue=cue) == pytest.approx(expected, abs=1e-13)
 
 
 def test_growth_rate_is_minus_infinity_when_a_strategy_leaves_no_offspring():
@@ -70,7 +70,7 @@ def test_markov_environment_gives_stationary_growth_for_memoryless_strategies():
     # Ergodic theorem: a memoryless strategy's long-run growth only depends on the stationary
     # distribution; for a two-state chain it is (b, a) / (a + b) (textbook closed form).
     a, b = 0.1, 0.3
-    chain = gr.MarkovEnvironment([[1 - a, a], [b, 1 - b]])
+    chain = gr.MarkovHabitat([[1 - a, a], [b, 1 - b]])
     fitness = [[2.0, 0.5], [0.3, 1.5]]
     stationary = [b / (a + b), a / (a + b)]
     assert gr.growth_rate(fitness, chain, [0.6, 0.4]) == pytest.approx(
@@ -122,9 +122,9 @@ def test_noisy_binary_cue_is_worth_one_minus_binary_entropy():
 def test_cue_is_worth_at_most_its_mutual_information(seed):
     # Barron & Cover 1988: side information raises the optimal growth of any market by at
     # most I(E;C); and never lowers it (the optimum may ignore the cue).
-    fitness, env, cue = random_problem(np.random.default_rng(seed), m=4, n=3, k=3)
-    value = gr.cue_value(fitness, env, cue)
-    assert -1e-10 <= value.value_nats <= mutual_information_scipy(env, cue) + 1e-10
+    fitness, habitat, cue = random_problem(np.random.default_rng(seed), m=4, n=3, k=3)
+    value = gr.cue_value(fitness, habitat, cue)
+    assert -1e-10 <= value.value_nats <= mutual_information_scipy(habitat, cue) + 1e-10
 
 
 def test_symmetric_cue_information():
@@ -154,11 +154,11 @@ def test_two_by_two_bet_hedging_matches_first_order_condition():
 @pytest.mark.parametrize("seed", [13, 14, 15])
 def test_bet_hedging_beats_scipy_slsqp(seed):
     # General-purpose reference: scipy.optimize.minimize (trust-constr / SLSQP) on the simplex.
-    fitness, env, _ = random_problem(np.random.default_rng(seed), m=5, n=4)
-    result = gr.bet_hedging(fitness, env)
+    fitness, habitat, _ = random_problem(np.random.default_rng(seed), m=5, n=4)
+    result = gr.bet_hedging(fitness, habitat)
 
     def negative_growth(pi):
-        return -float(env @ np.log(fitness @ pi))
+        return -float(habitat @ np.log(fitness @ pi))
 
     reference = minimize(
         negative_growth, np.full(4, 0.25), method="SLSQP", bounds=[(1e-12, 1.0)] * 4,
@@ -168,7 +168,7 @@ def test_bet_hedging_beats_scipy_slsqp(seed):
     assert result.growth_rate >= -reference.fun - 1e-12
     assert result.growth_rate == pytest.approx(-reference.fun, abs=1e-8)
     # Kuhn–Tucker conditions (Cover 1984): c(x) = E[f(E,x) / f(E).pi] <= 1, = 1 where used.
-    c = env @ (fitness / (fitness @ result.strategy)[:, None])
+    c = habitat @ (fitness / (fitness @ result.strategy)[:, None])
     assert c.max() <= 1 + 1e-9
     np.testing.assert_allclose(c[result.strategy > 1e-9], 1.0, atol=1e-9)
 
@@ -178,10 +178,10 @@ def test_optimal_growth_is_never_beaten_by_a_random_strategy(seed):
     # Property: the optimum of a concave problem (Cover & Thomas §16.2, from memory) is at
     # least the value of any feasible strategy.
     rng = np.random.default_rng(seed)
-    fitness, env, cue = random_problem(rng)
-    best = gr.bet_hedging(fitness, env, cue=cue)
+    fitness, habitat, cue = random_problem(rng)
+    best = gr.bet_hedging(fitness, habitat, cue=cue)
     other = rng.dirichlet(np.ones(3), size=3)
-    assert best.growth_rate >= gr.growth_rate(fitness, env, other, cue=cue) - 1e-12
+    assert best.growth_rate >= gr.growth_rate(fitness, habitat, other, cue=cue) - 1e-12
 
 
 # --------------------------------------------------------------------------- generations
@@ -191,19 +191,19 @@ def test_memoryless_simulation_agrees_with_formula_and_its_error_bar_is_honest()
     # Per-generation log growth is i.i.d. for a memoryless strategy in independent
     # environments, so the standard error of the mean is sd / sqrt(T) (central limit theorem).
     fitness = np.array([[2.5, 0.4], [0.3, 1.8], [1.0, 1.0]])
-    env = np.array([0.5, 0.3, 0.2])
+    habitat = np.array([0.5, 0.3, 0.2])
     strategy = np.array([0.7, 0.3])
-    exact = gr.growth_rate(fitness, env, strategy)
+    exact = gr.growth_rate(fitness, habitat, strategy)
     generations = 40_000
     estimate = gr.generation_growth(
-        fitness, env, strategy, method="simulation", generations=generations, seed=11
+        fitness, habitat, strategy, method="simulation", generations=generations, seed=11
     )
     logs = np.log(fitness @ strategy)
-    sd = math.sqrt(float(env @ (logs - exact) ** 2))
+    sd = math.sqrt(float(habitat @ (logs - exact) ** 2))
     assert abs(estimate.rate - exact) <= 4 * estimate.standard_error
     # 20 batch means: the estimated standard error is itself uncertain by ~1/sqrt(38) ≈ 16 %.
     assert estimate.standard_error == pytest.approx(sd / math.sqrt(generations), rel=0.5)
-    assert gr.generation_growth(fitness, env, strategy).method == "closed form"
+    assert gr.generation_growth(fitness, habitat, strategy).method == "closed form"
 
 
 def test_lyapunov_estimate_without_switching_is_best_geometric_mean_fitness():
@@ -211,7 +211,7 @@ def test_lyapunov_estimate_without_switching_is_best_geometric_mean_fitness():
     # the population at the best of them (Lewontin & Cohen 1969), here under a Markov chain
     # whose stationary distribution is (b, a) / (a + b).
     a, b = 0.05, 0.15
-    chain = gr.MarkovEnvironment([[1 - a, a], [b, 1 - b]])
+    chain = gr.MarkovHabitat([[1 - a, a], [b, 1 - b]])
     fitness = np.array([[2.0, 0.6], [0.4, 1.5]])
     stationary = np.array([b, a]) / (a + b)
     expected = float((stationary @ np.log(fitness)).max())
@@ -229,7 +229,7 @@ def test_periodic_generations_spectral_radius_against_quadratic_formula():
     m = np.diag(fitness[0]) @ switching.T
     tr, det = np.trace(m), np.linalg.det(m)
     expected = math.log(tr / 2 + math.sqrt(tr**2 / 4 - det))
-    estimate = gr.generation_growth(fitness, gr.PeriodicEnvironment([0], [1]), switching)
+    estimate = gr.generation_growth(fitness, gr.PeriodicHabitat([0], [1]), switching)
     assert estimate.method == "spectral radius"
     assert estimate.rate == pytest.approx(expected, abs=1e-13)
 
@@ -238,22 +238,22 @@ def test_periodic_generations_without_switching_is_best_time_average():
     # Lewontin & Cohen 1969 applied to a deterministic sequence: the best phenotype's
     # time-averaged log fitness.
     fitness = np.array([[2.0, 0.5], [0.25, 3.0]])
-    env = gr.PeriodicEnvironment([0, 1, 0], [3, 2, 1])
+    habitat = gr.PeriodicHabitat([0, 1, 0], [3, 2, 1])
     expected = float((np.array([4, 2]) @ np.log(fitness)).max() / 6)
-    assert gr.generation_growth(fitness, env, np.eye(2)).rate == pytest.approx(expected, abs=1e-13)
+    assert gr.generation_growth(fitness, habitat, np.eye(2)).rate == pytest.approx(expected, abs=1e-13)
 
 
 def test_cue_with_inheritance_reduces_to_formula_when_rows_agree():
     # A per-cue switching matrix whose rows are equal is memoryless, so the exact formula
     # applies; the simulated Lyapunov exponent must agree within 4 standard errors.
-    fitness, env, cue = random_problem(np.random.default_rng(21), m=3, n=2, k=2)
+    fitness, habitat, cue = random_problem(np.random.default_rng(21), m=3, n=2, k=2)
     policy = np.array([[0.8, 0.2], [0.3, 0.7]])
     stacked = np.repeat(policy[:, None, :], 2, axis=1)
-    exact = gr.growth_rate(fitness, env, policy, cue=cue)
+    exact = gr.growth_rate(fitness, habitat, policy, cue=cue)
     estimate = gr.generation_growth(
-        fitness, env, stacked, cue=cue, method="simulation", generations=30_000, seed=5
+        fitness, habitat, stacked, cue=cue, method="simulation", generations=30_000, seed=5
     )
-    assert gr.generation_growth(fitness, env, stacked, cue=cue).rate == pytest.approx(exact, abs=1e-14)
+    assert gr.generation_growth(fitness, habitat, stacked, cue=cue).rate == pytest.approx(exact, abs=1e-14)
     assert abs(estimate.rate - exact) <= 4 * estimate.standard_error
 
 
@@ -284,12 +284,12 @@ def test_periodic_growth_rate_against_ode_integration():
     # exponentials must match direct ODE integration (scipy.integrate.solve_ivp).
     rates = np.array([[0.9, -0.4, 0.1], [-0.6, 0.5, 0.0], [0.2, 0.1, 0.3]])
     switching = np.array([[0.0, 0.05, 0.02], [0.1, 0.0, 0.03], [0.01, 0.04, 0.0]])
-    env = gr.PeriodicEnvironment([0, 1, 2, 1], [4.0, 2.5, 1.0, 3.0])
-    exact = gr.continuous_growth(rates, switching, env)
+    habitat = gr.PeriodicHabitat([0, 1, 2, 1], [4.0, 2.5, 1.0, 3.0])
+    exact = gr.continuous_growth(rates, switching, habitat)
     k = switching - np.diag(switching.sum(axis=1))
     matrices = np.array([np.diag(g) + k.T for g in rates])
     assert exact.method == "spectral radius"
-    assert exact.rate == pytest.approx(ode_growth_rate(matrices, env.states, env.durations), abs=1e-8)
+    assert exact.rate == pytest.approx(ode_growth_rate(matrices, habitat.states, habitat.durations), abs=1e-8)
 
 
 def test_responsive_law_periodic_growth_against_ode_integration():
@@ -297,10 +297,10 @@ def test_responsive_law_periodic_growth_against_ode_integration():
     rates = np.array([[1.0, -0.5], [-0.8, 0.4]])
     law = np.array([[0.9, 0.1], [0.2, 0.8]])
     generators = gr.switching_generator(law, tau=2.0)
-    env = gr.PeriodicEnvironment([0, 1], [6.0, 4.0])
+    habitat = gr.PeriodicHabitat([0, 1], [6.0, 4.0])
     matrices = np.array([np.diag(g) + k.T for g, k in zip(rates, generators)])
-    exact = gr.continuous_growth(rates, generators, env).rate
-    assert exact == pytest.approx(ode_growth_rate(matrices, env.states, env.durations), abs=1e-8)
+    exact = gr.continuous_growth(rates, generators, habitat).rate
+    assert exact == pytest.approx(ode_growth_rate(matrices, habitat.states, habitat.durations), abs=1e-8)
 
 
 def test_switching_generator_relaxes_to_the_law():
@@ -322,11 +322,11 @@ def test_periodic_growth_with_environment_independent_switching_shift():
     switching = np.array([[0.0, 0.4], [0.7, 0.0]])
     a = np.diag(base_rates) + (switching - np.diag(switching.sum(axis=1))).T
     lam = np.trace(a) / 2 + math.sqrt(np.trace(a) ** 2 / 4 - np.linalg.det(a))
-    env = gr.PeriodicEnvironment([0, 1, 2], [2.0, 1.0, 3.0])
+    habitat = gr.PeriodicHabitat([0, 1, 2], [2.0, 1.0, 3.0])
     expected = lam + (shifts @ [2.0, 1.0, 3.0]) / 6.0
-    assert gr.continuous_growth(rates, switching, env).rate == pytest.approx(expected, abs=1e-12)
+    assert gr.continuous_growth(rates, switching, habitat).rate == pytest.approx(expected, abs=1e-12)
     # Same closed form in a switching environment, with its stationary time fractions.
-    markov = gr.SwitchingEnvironment([[0.0, 0.3, 0.2], [0.5, 0.0, 0.5], [0.1, 0.4, 0.0]])
+    markov = gr.SwitchingHabitat([[0.0, 0.3, 0.2], [0.5, 0.0, 0.5], [0.1, 0.4, 0.0]])
     estimate = gr.continuous_growth(rates, switching, markov, epochs=4000, seed=8)
     expected = lam + float(markov.probs @ shifts)
     assert abs(estimate.rate - expected) <= 4 * estimate.standard_error
@@ -339,9 +339,9 @@ def test_defective_growth_matrix_in_a_switching_environment():
     r, k = 0.2, 0.5
     shifts = np.array([0.4, -1.0])
     rates = np.full((2, 2), r) + shifts[:, None]
-    env = gr.SwitchingEnvironment([[0.0, 0.3], [0.6, 0.0]])
-    estimate = gr.continuous_growth(rates, [[0.0, k], [0.0, 0.0]], env, epochs=3000, seed=6)
-    expected = r + float(env.probs @ shifts)
+    habitat = gr.SwitchingHabitat([[0.0, 0.3], [0.6, 0.0]])
+    estimate = gr.continuous_growth(rates, [[0.0, k], [0.0, 0.0]], habitat, epochs=3000, seed=6)
+    expected = r + float(habitat.probs @ shifts)
     assert abs(estimate.rate - expected) <= 4 * estimate.standard_error
 
 
@@ -350,9 +350,9 @@ def test_constant_environment_is_principal_eigenvalue():
     rates, switching = [[0.5, 0.1]], [[0.0, 0.2], [0.3, 0.0]]
     a = np.array([[0.5 - 0.2, 0.3], [0.2, 0.1 - 0.3]])
     lam = np.trace(a) / 2 + math.sqrt(np.trace(a) ** 2 / 4 - np.linalg.det(a))
-    single = gr.SwitchingEnvironment([[0.0]])
+    single = gr.SwitchingHabitat([[0.0]])
     assert gr.continuous_growth(rates, switching, single).rate == pytest.approx(lam, abs=1e-13)
-    periodic = gr.PeriodicEnvironment([0], [7.0])
+    periodic = gr.PeriodicHabitat([0], [7.0])
     assert gr.continuous_growth(rates, switching, periodic).rate == pytest.approx(lam, abs=1e-12)
 
 
@@ -400,8 +400,8 @@ def test_markov_environment_simulation_against_telegraph_density():
     # (see telegraph_growth_rate); the simulation must agree within 4 standard errors.
     g, k01, k10, a, b = [[1.0, -0.5], [-0.2, 0.6]], 0.2, 0.05, 0.5, 0.8
     expected = telegraph_growth_rate(g, k01, k10, a, b)
-    env = gr.SwitchingEnvironment([[0.0, a], [b, 0.0]])
-    estimate = gr.continuous_growth(g, [[0.0, k01], [k10, 0.0]], env, epochs=20_000, seed=2)
+    habitat = gr.SwitchingHabitat([[0.0, a], [b, 0.0]])
+    estimate = gr.continuous_growth(g, [[0.0, k01], [k10, 0.0]], habitat, epochs=20_000, seed=2)
     assert estimate.method == "simulation"
     assert abs(estimate.rate - expected) <= 4 * estimate.standard_error
     assert estimate.standard_error < 0.005
@@ -413,7 +413,7 @@ def test_markov_environment_simulation_against_telegraph_density():
 def kl_relative_errors(growth_difference, durations):
     rates = [[growth_difference / 2, -growth_difference / 2],
              [-growth_difference / 2, growth_difference / 2]]
-    best = gr.optimal_switching(rates, gr.PeriodicEnvironment([0, 1], durations))
+    best = gr.optimal_switching(rates, gr.PeriodicHabitat([0, 1], durations))
     assert best.converged
     return np.array([best.rates[0, 1] * durations[0] - 1, best.rates[1, 0] * durations[1] - 1])
 
@@ -437,8 +437,8 @@ def test_optimal_switching_rate_doubles_when_environment_changes_twice_as_often(
     # optimal rate out of phenotype 0 (within the 3 / (Δg min T) tolerance above).
     dg = 8.0
     rates = [[dg / 2, -dg / 2], [-dg / 2, dg / 2]]
-    slow = gr.optimal_switching(rates, gr.PeriodicEnvironment([0, 1], [40.0, 30.0]))
-    fast = gr.optimal_switching(rates, gr.PeriodicEnvironment([0, 1], [20.0, 30.0]))
+    slow = gr.optimal_switching(rates, gr.PeriodicHabitat([0, 1], [40.0, 30.0]))
+    fast = gr.optimal_switching(rates, gr.PeriodicHabitat([0, 1], [20.0, 30.0]))
     assert fast.rates[0, 1] / slow.rates[0, 1] == pytest.approx(2.0, rel=3.0 / (dg * 20.0))
 
 
@@ -448,8 +448,8 @@ def test_optimal_switching_in_a_markov_environment():
     # numbers), so the optimum moves with the history (measured over seeds 0-7: 0.92 to 1.00
     # times the law), and with Δg = 16 the finite-Δg correction is a few per cent.
     dg, a, b = 16.0, 1 / 20, 1 / 50
-    env = gr.SwitchingEnvironment([[0.0, a], [b, 0.0]])
-    best = gr.optimal_switching([[dg / 2, -dg / 2], [-dg / 2, dg / 2]], env, epochs=4000, seed=4)
+    habitat = gr.SwitchingHabitat([[0.0, a], [b, 0.0]])
+    best = gr.optimal_switching([[dg / 2, -dg / 2], [-dg / 2, dg / 2]], habitat, epochs=4000, seed=4)
     assert best.rates[0, 1] == pytest.approx(a, rel=0.15)
     assert best.rates[1, 0] == pytest.approx(b, rel=0.15)
     assert best.growth_rate.standard_error > 0
@@ -460,8 +460,8 @@ def test_break_even_sensing_cost():
     # time average of max_x g(e, x) (Kussell & Leibler 2005); the break-even cost is that minus
     # the optimal switching growth, which must itself lie below it.
     rates = np.array([[1.0, -1.0], [-0.5, 0.5]])
-    env = gr.PeriodicEnvironment([0, 1], [10.0, 30.0])
-    best = gr.optimal_switching(rates, env)
+    habitat = gr.PeriodicHabitat([0, 1], [10.0, 30.0])
+    best = gr.optimal_switching(rates, habitat)
     sensing = (10.0 * 1.0 + 30.0 * 0.5) / 40.0
     assert best.sensing_growth_rate == pytest.approx(sensing, abs=1e-14)
     assert best.break_even_cost == pytest.approx(sensing - best.growth_rate.rate, abs=1e-14)
@@ -476,13 +476,13 @@ def test_sensing_tradeoff_endpoints_by_hand():
     # (domain notes §2): growth = sum_e p(e) log f(e, x*). At large beta it takes
     # argmax_x E[f(E, x) | c] in each cue state. Both by hand; common practice, no source.
     fitness = np.array([[3.0, 0.5], [0.4, 2.0]])
-    env = np.array([0.6, 0.4])
+    habitat = np.array([0.6, 0.4])
     cue = gr.symmetric_cue(2, 0.2)
-    scan = gr.sensing_tradeoff(fitness, env, cue, [0.0, 200.0])
-    mean = env @ fitness
-    assert scan.growth_rate[0] == pytest.approx(float(env @ np.log(fitness[:, np.argmax(mean)])), abs=1e-12)
+    scan = gr.sensing_tradeoff(fitness, habitat, cue, [0.0, 200.0])
+    mean = habitat @ fitness
+    assert scan.growth_rate[0] == pytest.approx(float(habitat @ np.log(fitness[:, np.argmax(mean)])), abs=1e-12)
     assert scan.information_bits[0] == pytest.approx(0.0, abs=1e-12)
-    joint = env[:, None] * cue
+    joint = habitat[:, None] * cue
     choice = np.argmax(joint.T @ fitness, axis=1)  # best phenotype per cue state
     by_hand = float(np.sum(joint * np.log(fitness[:, choice])))
     assert scan.growth_rate[1] == pytest.approx(by_hand, abs=1e-9)
@@ -492,16 +492,16 @@ def test_sensing_tradeoff_optimum_is_consistent_and_bounded():
     # The best law never beats the optimal bet-hedging policy with the same cue (definition
     # of the optimum), and its reported figures match switchlaw's own public measures.
     fitness = np.array([[3.0, 0.6, 0.1], [0.4, 2.5, 0.5], [0.2, 0.8, 2.0]])
-    env = np.array([0.5, 0.3, 0.2])
+    habitat = np.array([0.5, 0.3, 0.2])
     cue = gr.symmetric_cue(3, 0.2)
-    scan = gr.sensing_tradeoff(fitness, env, cue, np.geomspace(0.01, 100, 60), cost_per_bit=0.05)
+    scan = gr.sensing_tradeoff(fitness, habitat, cue, np.geomspace(0.01, 100, 60), cost_per_bit=0.05)
     assert scan.best_net_growth >= scan.net_growth.max() - 1e-15
-    assert scan.best_growth_rate <= gr.bet_hedging(fitness, env, cue=cue).growth_rate + 1e-12
-    cue_probs = env @ cue
+    assert scan.best_growth_rate <= gr.bet_hedging(fitness, habitat, cue=cue).growth_rate + 1e-12
+    cue_probs = habitat @ cue
     assert scan.best_information_bits == pytest.approx(
         mutual_information(cue_probs, scan.best_policy, unit="bits"), abs=1e-12)
     assert scan.best_growth_rate == pytest.approx(
-        gr.growth_rate(fitness, env, scan.best_policy, cue=cue), abs=1e-14)
+        gr.growth_rate(fitness, habitat, scan.best_policy, cue=cue), abs=1e-14)
     assert scan.best_net_growth == pytest.approx(
         scan.best_growth_rate - 0.05 * scan.best_information_bits, abs=1e-14)
 
@@ -521,11 +521,11 @@ def test_expensive_sensing_makes_the_cue_worthless():
 def test_environment_objects():
     # Two-state chains: stationary (b, a) / (a + b); mean holding time 1 / rate
     # (textbook facts about Markov chains; common practice, no source).
-    chain = gr.MarkovEnvironment([[0.8, 0.2], [0.6, 0.4]])
+    chain = gr.MarkovHabitat([[0.8, 0.2], [0.6, 0.4]])
     np.testing.assert_allclose(chain.probs, [0.75, 0.25], atol=1e-14)
     path = chain.sample(20_000, seed=1)
     assert np.mean(path == 0) == pytest.approx(0.75, abs=0.02)
-    switching = gr.SwitchingEnvironment([[0.0, 0.5], [2.0, 0.0]])
+    switching = gr.SwitchingHabitat([[0.0, 0.5], [2.0, 0.0]])
     np.testing.assert_allclose(switching.probs, [0.8, 0.2], atol=1e-14)
     states, durations = switching.sample(20_000, seed=2)
     assert durations[states == 0].mean() == pytest.approx(2.0, rel=0.05)
@@ -542,14 +542,14 @@ def test_results_print_a_short_summary():
     text = repr(result)
     assert "nats/generation" in text and "\n" not in text
     assert "±" in repr(gr.continuous_growth(
-        [[1.0], [-1.0]], [[0.0]], gr.SwitchingEnvironment([[0, 1.0], [1.0, 0]]), epochs=200, seed=0))
+        [[1.0], [-1.0]], [[0.0]], gr.SwitchingHabitat([[0, 1.0], [1.0, 0]]), epochs=200, seed=0))
 
 
 def test_same_seed_same_numbers():
-    fitness, env = np.array([[2.0, 0.5], [0.5, 2.0]]), [0.5, 0.5]
+    fitness, habitat = np.array([[2.0, 0.5], [0.5, 2.0]]), [0.5, 0.5]
     s = [[0.9, 0.1], [0.1, 0.9]]
-    first = gr.generation_growth(fitness, env, s, generations=2000, seed=9)
-    second = gr.generation_growth(fitness, env, s, generations=2000, seed=np.random.default_rng(9))
+    first = gr.generation_growth(fitness, habitat, s, generations=2000, seed=9)
+    second = gr.generation_growth(fitness, habitat, s, generations=2000, seed=np.random.default_rng(9))
     assert first.rate == second.rate and first.standard_error == second.standard_error
 
 
@@ -575,20 +575,20 @@ DIAG = np.diag([2.0, 2.0])
          r"`cue` rows must sum to 1 within 1e-09; row 0 sums to 1\.1"),
         (lambda: gr.growth_rate(np.eye(3), [0.5, 0.5], [0.5, 0.5]),
          r"`fitness` must have one row per environment state \(2\) \(got shape \(3, 3\)\)"),
-        (lambda: gr.MarkovEnvironment([[0.9, 0.2], [0.5, 0.5]]),
+        (lambda: gr.MarkovHabitat([[0.9, 0.2], [0.5, 0.5]]),
          r"`transition` rows must sum to 1 within 1e-09; row 0 sums to 1\.1"),
-        (lambda: gr.MarkovEnvironment([[1.0, 0.0], [0.5, 0.5]]),
+        (lambda: gr.MarkovHabitat([[1.0, 0.0], [0.5, 0.5]]),
          r"`transition` must describe an irreducible chain .* \(got 2 communicating classes\)"),
-        (lambda: gr.SwitchingEnvironment([[0.0, -1.0], [1.0, 0.0]]),
+        (lambda: gr.SwitchingHabitat([[0.0, -1.0], [1.0, 0.0]]),
          r"`rates` off-diagonal rates must be >= 0; entry \(0, 1\) is -1\.0"),
-        (lambda: gr.PeriodicEnvironment([0, 1], [5.0, 0.0]),
+        (lambda: gr.PeriodicHabitat([0, 1], [5.0, 0.0]),
          r"`durations` must be > 0; entry 1 is 0\.0"),
-        (lambda: gr.PeriodicEnvironment([0, 1], [-2.0, 1.0]),
+        (lambda: gr.PeriodicHabitat([0, 1], [-2.0, 1.0]),
          r"`durations` must be > 0; entry 0 is -2\.0"),
-        (lambda: gr.PeriodicEnvironment([0, 1], [1.0]),
+        (lambda: gr.PeriodicHabitat([0, 1], [1.0]),
          r"`states` and `durations` must have the same length \(got 2 and 1\)"),
-        (lambda: gr.generation_growth(DIAG, gr.PeriodicEnvironment([0, 1], [1.5, 1.0]), np.eye(2)),
-         r"`env.durations` must be whole numbers of generations; entry 0 is 1\.5"),
+        (lambda: gr.generation_growth(DIAG, gr.PeriodicHabitat([0, 1], [1.5, 1.0]), np.eye(2)),
+         r"`habitat.durations` must be whole numbers of generations; entry 0 is 1\.5"),
         (lambda: gr.generation_growth(DIAG, [0.5, 0.5], [[0.9, 0.1], [0.1, 0.9]]),
          r"`seed` must be given \(an int or numpy Generator\) when the growth rate is "
          r"estimated by simulation \(got None\)"),
@@ -600,18 +600,18 @@ DIAG = np.diag([2.0, 2.0])
         (lambda: gr.generation_growth(DIAG, [0.5, 0.5], [[0.9, 0.1], [0.1, 0.9]], seed=1, batches=1),
          r"`batches` must be an integer >= 2 \(got 1\)"),
         (lambda: gr.continuous_growth([[1.0]], [[0.0]], [0.5, 0.5]),
-         r"`env` must be a PeriodicEnvironment or a SwitchingEnvironment"),
-        (lambda: gr.continuous_growth([[1.0, 0.0]], [[0.0, 0.1], [-0.1, 0.0]], gr.PeriodicEnvironment([0], [1.0])),
+         r"`habitat` must be a PeriodicHabitat or a SwitchingHabitat"),
+        (lambda: gr.continuous_growth([[1.0, 0.0]], [[0.0, 0.1], [-0.1, 0.0]], gr.PeriodicHabitat([0], [1.0])),
          r"`switching` off-diagonal rates must be >= 0; entry \(1, 0\) is -0\.1"),
-        (lambda: gr.continuous_growth([[1.0, 0.0]], [[0.5, 0.1], [0.1, 0.0]], gr.PeriodicEnvironment([0], [1.0])),
+        (lambda: gr.continuous_growth([[1.0, 0.0]], [[0.5, 0.1], [0.1, 0.0]], gr.PeriodicHabitat([0], [1.0])),
          r"`switching` diagonal must be 0 or minus the row's total switching rate; entry \(0, 0\) is 0\.5"),
-        (lambda: gr.continuous_growth([[1.0, 0.0]], np.zeros((2, 2)), gr.PeriodicEnvironment([1], [1.0])),
-         r"`env.states` must index the rows of `rates` \(0 to 0\) \(got state 1\)"),
+        (lambda: gr.continuous_growth([[1.0, 0.0]], np.zeros((2, 2)), gr.PeriodicHabitat([1], [1.0])),
+         r"`habitat.states` must index the rows of `rates` \(0 to 0\) \(got state 1\)"),
         (lambda: gr.switching_generator([[0.5, 0.5]], tau=0.0), r"`tau` must be > 0 \(got 0\.0\)"),
         (lambda: gr.symmetric_cue(3, 1.5), r"`error` must be a probability in \[0, 1\] \(got 1\.5\)"),
         (lambda: gr.sensing_tradeoff(DIAG, [0.5, 0.5], np.eye(2), [1.0], cost_per_bit=-1.0),
          r"`cost_per_bit` must be finite and >= 0 \(got -1\.0\)"),
-        (lambda: gr.optimal_switching([[1.0, 0.0]], gr.PeriodicEnvironment([0], [1.0]), bounds=(2.0, 1.0)),
+        (lambda: gr.optimal_switching([[1.0, 0.0]], gr.PeriodicHabitat([0], [1.0]), bounds=(2.0, 1.0)),
          r"`bounds` must be \(low, high\) with 0 < low < high"),
     ],
 )

@@ -266,3 +266,70 @@ def test_law_lookup_outside_its_grid_and_bad_channel():
 
     with pytest.raises(sl.InputError, match="`receptor channel` rows must sum to 1"):
         sl.continuous_signal(stats.uniform(0, 1), [0.0, 0.5, 1.0], receptor=LeakyReceptor())
+
+
+def test_density_dependent_payoff_against_hand_computed_law():
+    # Maximum entropy with two phenotypes is logistic in the payoff difference (Jaynes 1957):
+    # q(divide | y, rho) = 1 / (1 + exp(-beta (u_divide - u_move))). With
+    # u_divide = (1 - rho) y / 4, u_move = 0, beta = 2, by hand: at rho = 0.5, y = 2 the
+    # difference is 0.25 and q = 1 / (1 + e^-0.5) = 0.6224593312018546; at rho = 0.25, y = 4
+    # it is 0.75 and q = 1 / (1 + e^-1.5) = 0.8175744761936437.
+    payoff = {"divide": sl.DensityDependent(lambda v, rho: (1 - rho) * v / 4), "move": sl.Linear(slope=0.0)}
+    law = sl.derive_law(payoff, lambda rho: sl.occupancy(4, rho), densities=[0.0, 0.25, 0.5, 1.0],
+                        beta=2.0, objective="max-entropy")
+    assert law.probs(0.5)[2, 0] == pytest.approx(0.6224593312018546, rel=1e-12)
+    assert law.probs(0.25)[4, 0] == pytest.approx(0.8175744761936437, rel=1e-12)
+    # The mean-field fraction averages over Binomial(4, rho) neighbour counts (scipy.stats).
+    from scipy import stats
+
+    y = np.arange(5)
+    expected = stats.binom.pmf(y, 4, 0.25) @ (1 / (1 + np.exp(-2.0 * 0.75 * y / 4)))
+    assert law.fractions(0.25)[0] == pytest.approx(expected, rel=1e-12)
+    # A fixed environment (no density of its own) is evaluated at each density of the grid.
+    fixed = sl.occupancy(4, 0.5)
+    law_fixed = sl.derive_law(payoff, sl.Environment(states=fixed.states, probs=fixed.probs, values=fixed.values),
+                              densities=[0.0, 1.0], beta=2.0, objective="max-entropy")
+    assert law_fixed.probs(0.0)[4, 0] == pytest.approx(1 / (1 + np.exp(-2.0)), rel=1e-12)
+    assert law_fixed.probs(1.0)[4, 0] == pytest.approx(0.5, rel=1e-12)
+    with pytest.raises(sl.InputError, match=r"payoff\['divide'\]` depends on density"):
+        sl.solve(sl.laws._payoffs.payoff_table(payoff, fixed.__class__(states=fixed.states, probs=fixed.probs,
+                                                                       values=fixed.values))[0], fixed, beta=1.0)
+    with pytest.raises(sl.InputError, match="`function` must be callable"):
+        sl.DensityDependent(3.0)
+
+
+def test_empirical_with_a_receptor_against_an_independent_computation():
+    # Noisy sensing of a measured signal distribution. Independent computation: the histogram
+    # from numpy.histogram (edges 0, 1, 2, 3, 4), the Gaussian channel from scipy.stats.norm
+    # (the noisy reading of a bin centre falls in sensed bin s; readings beyond the outer edges
+    # count as the end bins), the Poisson channel from scipy.stats.poisson (last state collects
+    # the upper tail), then p(s) = sum_y p(y) W(s | y) (law of total probability).
+    from scipy import stats
+
+    samples = np.array([0.2, 0.7, 1.1, 1.4, 1.9, 2.2, 2.5, 2.6, 3.3, 3.9])
+    edges = np.arange(5.0)
+    p_true = np.histogram(samples, bins=edges)[0] / samples.size
+    centres = np.array([0.5, 1.5, 2.5, 3.5])
+    env = sl.empirical(samples, bins=edges, receptor=sl.GaussianReceptor(sd=0.8))
+    upper = stats.norm.cdf((edges[1:, None] - centres[None, :]) / 0.8)  # P(reading < edge k+1 | y)
+    w = np.empty((4, 4))
+    for y in range(4):
+        below = np.concatenate([[0.0], upper[:-1, y], [1.0]])
+        w[y] = np.diff(below)
+    assert np.allclose(env.true_probs, p_true, atol=1e-15)
+    assert np.allclose(env.channel, w, atol=1e-14)
+    assert np.allclose(env.probs, p_true @ w, atol=1e-14)
+    poisson = sl.empirical(samples, bins=edges, receptor=sl.PoissonReceptor(gain=2.0, max_count=6))
+    k = np.arange(7)
+    wp = stats.poisson.pmf(k[None, :], 2.0 * centres[:, None])
+    wp[:, -1] = stats.poisson.sf(5, 2.0 * centres)
+    assert np.allclose(poisson.probs, p_true @ wp, atol=1e-14)
+    assert np.allclose(poisson.decision_values, k / 2.0)
+    # A law derived on it weighs the posterior payoff: with payoff equal to the true bin centre
+    # for "high" (0 for "low"), E[u | s] = sum_y p(y) W(s|y) v_y / p(s) (Bayes).
+    payoff = {"low": sl.Linear(slope=0.0), "high": sl.Linear(slope=1.0)}
+    law = sl.derive_law(payoff, env, densities=[0.5], beta=1.0, objective="max-entropy")
+    posterior = (p_true[:, None] * w * centres[:, None]).sum(axis=0) / (p_true @ w)
+    assert np.allclose(law.probs(0.5)[:, 1], 1 / (1 + np.exp(-posterior)), atol=1e-10)
+    with pytest.raises(sl.InputError, match="`receptor` must be"):
+        sl.empirical(samples, bins=edges, receptor="gaussian")

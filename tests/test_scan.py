@@ -70,7 +70,7 @@ def go_or_grow(death=0.2, objective="max-entropy"):
 
 
 def neighbourhood(neighbours=6, death=0.2):
-    """A study builder: the neighbourhood size becomes a scan parameter."""
+    """A model builder: the neighbourhood size becomes a scan parameter."""
     return sl.MeanField(PAYOFF, functools.partial(sl.occupancy, neighbours), division=[1.0, 0.0],
                         death=[death, death], objective="max-entropy")
 
@@ -409,9 +409,9 @@ def test_unreachable_scheduler_is_a_clear_error_without_a_hang(tmp_path):
         (lambda: sa.scan(42, {"x": [1.0]}), r"`function` must be callable"),
         (lambda: sa.scan(changing_shape, {"x": [1.0, 2.0]}, progress=False), r"output 'v' must have the same shape and kind at every point; item 1 \({'x': 2\.0}\) gave f\(2,\), item 0 gave f\(1,\)"),
         (lambda: sa.scan(sa.LawSummary(go_or_grow(), densities=[0.5]), {"beta": [1.0], "deaht_scale": [1.0]}),
-         r"`grid` names 'deaht_scale', which the study does not have \(its parameters: beta, cost_per_bit, death_scale, division_scale, tau\)"),
+         r"`grid` names 'deaht_scale', which the model family does not have \(its parameters: beta, cost_per_bit, death_scale, division_scale, tau\)"),
         (lambda: sa.scan(sa.RegimeSummary(neighbourhood), {"beta": [1.0], "neighbors": [4]}),
-         r"`grid` names 'neighbors', which the study does not have \(its parameters: beta, cost_per_bit, neighbours, death, death_scale"),
+         r"`grid` names 'neighbors', which the model family does not have \(its parameters: beta, cost_per_bit, neighbours, death, death_scale"),
         (lambda: sa.scan(sa.RegimeSummary(go_or_grow()), {"death_scale": [1.0]}), r"give exactly one of 'beta', 'cost_per_bit'"),
         (lambda: sa.scan(sa.CriticalBetas(go_or_grow(), beta_min=0.1, beta_max=2.0), {"beta": [1.0]}), r"sets 'beta' itself"),
         (lambda: sa.sobol_points({"beta": (0.1, 2.0)}, 100), r"`n` must be a power of 2 .* \(got 100; nearest 64 or 128\)"),
@@ -427,3 +427,14 @@ def test_errors_inside_the_function_name_the_point():
     with pytest.raises(ZeroDivisionError, match="three is not allowed") as caught:
         sa.scan(fails_at_three, {"x": np.arange(5.0)}, progress=False)
     assert "at item 3, point {'x': 3.0}" in "\n".join(caught.value.__notes__)
+
+
+def test_dask_executor_without_distributed_is_a_one_line_error(monkeypatch):
+    # dask.distributed is an optional dependency (`switchlaw[dask]`): without it, naming a
+    # scheduler is an InputError that says what to install (common practice, no source).
+    from switchlaw.analysis._dask import DaskExecutor
+    from switchlaw.analysis._targets import Target
+
+    monkeypatch.setitem(sys.modules, "distributed", None)  # import distributed -> ImportError
+    with pytest.raises(sl.InputError, match=r"switchlaw\[dask\]"):
+        DaskExecutor.connect(Target("address", "tcp://127.0.0.1:1"), abs)

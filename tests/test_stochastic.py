@@ -679,3 +679,66 @@ def test_sweep_candidate_turns_are_independent_bernoulli_trials(width):
     assert np.array_equal(rr_half[order], rr[mine][reference])
     assert np.array_equal(ss_half[order], ss[mine][reference])
     assert np.array_equal(u_half[order], u[mine][reference])
+
+
+@pytest.mark.parametrize("neighbourhood, boundary, replicates", [
+    ("von-neumann", "periodic", 6), ("moore", "closed", 6), ("hexagonal", "periodic", 6), ("hexagonal", "closed", 6),
+    ("von-neumann", "periodic", 1), ("moore", "closed", 1)])
+def test_sweep_resolved_at_once_equals_class_by_class(neighbourhood, boundary, replicates):
+    # The sweep engine resolves all classes of a sweep at once (fixed-point iteration over the
+    # turns). Reference: the definition, taking the classes one after another (the engine's
+    # by_class path, which the statistical checks above and the benchmark's per-cell loop also
+    # follow); from the same random numbers the layouts must agree exactly, with one lattice
+    # (whose random numbers are drawn several sweeps at once) and several replicates, closed edges (targets beyond the edge) and crowding (failed claims, movers
+    # vacating sites that later turns fill).
+    from switchlaw.stochastic._streams import Streams
+    from switchlaw.stochastic._sweep import run_sweeps
+
+    lattice = Lattice((12, 14), neighbourhood=neighbourhood, boundary=boundary)
+    law = sl.derive_law(GO_OR_GROW, lambda rho: sl.occupancy(lattice.size, rho),
+                        densities=np.linspace(0, 1, 21), beta=3.0, objective="max-entropy")
+    model = LatticeModel(lattice, division=[1.0, 0.3], death=[0.2, 0.4], motility=[0.5, 1.0], law=law, tau=0.5)
+    outcomes = []
+    for by_class in (True, False):
+        streams = Streams(np.random.SeedSequence(5), replicates)
+        codes = model._codes(lattice.scatter(0.6, seed=1, replicates=replicates), replicates, streams)
+        recorded, layouts, turns, cells = run_sweeps(model.rules, lattice, codes, streams, times=np.array([1.0, 4.0]),
+                                                     snap=np.array([True, True]), dt_max=0.25, by_class=by_class)
+        outcomes.append((recorded, *layouts, turns, cells))
+    assert all(np.array_equal(a, b) for a, b in zip(*outcomes))
+    assert outcomes[0][-1].min() > 0  # the colonies lived: the comparison saw every kind of event
+
+
+@pytest.mark.parametrize("width", [None, 8])
+def test_batched_sweep_draws_are_independent_bernoulli_trials(width):
+    # Several sweeps' draws at once (_SweepDraws.batch), as the engine takes them without
+    # `upper`. References as for one sweep: each site of each sweep is a candidate
+    # independently with probability `top` (binomial closed forms), a candidate's u is uniform
+    # on [0, top) (scipy.stats.kstest), the class ranks are permutations; and a batch returns
+    # exactly what the same sweeps drawn one by one return (width=8 makes every row continue
+    # its run of gaps, where the batch rewinds the streams and draws sweep by sweep).
+    from switchlaw.stochastic._streams import Streams
+    from switchlaw.stochastic._sweep import _SweepDraws
+
+    replicates, sites, classes, top, count = 400, 100, 5, 0.3, 6
+    draws = _SweepDraws(Streams(np.random.SeedSequence(8), replicates), replicates, classes, sites, top, width=width)
+    batch = draws.batch(np.ones(replicates, dtype=bool), count)
+    assert len(batch) == count
+    total = 0
+    for rank, rr, ss, u in batch:
+        assert np.array_equal(np.sort(rank, axis=1), np.tile(np.arange(classes), (replicates, 1)))
+        assert np.unique(rr * sites + ss).size == rr.size and ss.min() >= 0 and ss.max() < sites
+        assert u.min() >= 0 and u.max() < top
+        total += rr.size
+    trials = count * replicates * sites
+    assert z_ok(total / trials, top, binomial_se(top, trials))
+    u_all = np.concatenate([b[3] for b in batch])
+    assert stats.kstest(u_all / top, "uniform").pvalue > 1e-4
+    one_by_one = _SweepDraws(Streams(np.random.SeedSequence(8), replicates), replicates, classes, sites, top,
+                             width=width)
+    for rank, rr, ss, u in batch + draws.batch(np.ones(replicates, dtype=bool), 2):
+        rank1, rr1, ss1, u1 = one_by_one.sweep(np.ones(replicates, dtype=bool))
+        order, order1 = np.lexsort((ss, rr)), np.lexsort((ss1, rr1))
+        assert np.array_equal(rank, rank1)
+        assert np.array_equal(rr[order], rr1[order1]) and np.array_equal(ss[order], ss1[order1])
+        assert np.array_equal(u[order], u1[order1])

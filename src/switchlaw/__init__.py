@@ -12,7 +12,7 @@ start quickly; ``switchlaw.__all__`` lists them all.
 
 from __future__ import annotations
 
-import importlib
+import importlib as _importlib
 
 __version__ = "0.1.0"
 
@@ -47,6 +47,7 @@ _EXPORTS = {
     # laws
     "BINNING_RULES": ".laws",
     "continuous_signal": ".laws",
+    "DensityDependent": ".laws",
     "derive_law": ".laws",
     "empirical": ".laws",
     "Environment": ".laws",
@@ -80,13 +81,13 @@ _EXPORTS = {
     "generation_growth": ".growth",
     "growth_rate": ".growth",
     "GrowthEstimate": ".growth",
-    "MarkovEnvironment": ".growth",
+    "MarkovHabitat": ".growth",
     "optimal_switching": ".growth",
-    "PeriodicEnvironment": ".growth",
+    "PeriodicHabitat": ".growth",
     "sensing_tradeoff": ".growth",
     "SensingTradeoff": ".growth",
     "switching_generator": ".growth",
-    "SwitchingEnvironment": ".growth",
+    "SwitchingHabitat": ".growth",
     "SwitchingOptimum": ".growth",
     "symmetric_cue": ".growth",
     # stochastic
@@ -138,16 +139,30 @@ _EXPORTS = {
 
 __all__ = sorted(_EXPORTS)
 
+#: Old public name -> its new name, kept for one release with a DeprecationWarning.
+_RENAMED = {
+    "MarkovEnvironment": "MarkovHabitat",
+    "PeriodicEnvironment": "PeriodicHabitat",
+    "SwitchingEnvironment": "SwitchingHabitat",
+}
+
 
 def __getattr__(name: str):
+    if name in _RENAMED:
+        import warnings
+
+        warnings.warn(f"`switchlaw.{name}` is deprecated since 0.2; use `switchlaw.{_RENAMED[name]}`",
+                      DeprecationWarning, stacklevel=2)
+        return __getattr__(_RENAMED[name])
     try:
         module = _EXPORTS[name]
     except KeyError:
         raise AttributeError(f"module 'switchlaw' has no attribute {name!r}") from None
-    value = getattr(importlib.import_module(module, __name__), name)
+    value = getattr(_importlib.import_module(module, __name__), name)
     globals()[name] = value
     return value
 
 
 def __dir__():
-    return sorted(set(globals()) | set(__all__))
+    """The public names and the module's dunders (not its imports or private helpers)."""
+    return sorted(set(__all__) | {name for name in globals() if name.startswith("__") and name.endswith("__")})

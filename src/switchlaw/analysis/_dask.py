@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from .._errors import InputError
 from ._batch import run_batch
-from ._executors import Target, function_bytes
+from ._targets import Target, function_bytes
 
 #: Seconds to wait for a scheduler to answer.
 CONNECT_TIMEOUT = 5
@@ -38,7 +38,13 @@ class DaskExecutor:
 
     @classmethod
     def connect(cls, target: Target, function) -> "DaskExecutor":
-        from distributed import Client
+        try:
+            from distributed import Client
+        except ImportError:
+            raise InputError(
+                "`executor`: a Dask scheduler needs dask.distributed, an optional dependency: "
+                "pip install 'switchlaw[dask]'"
+            ) from None
 
         if target.kind == "client":
             client, owned = target.value, False

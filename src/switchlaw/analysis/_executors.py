@@ -12,23 +12,14 @@ from __future__ import annotations
 import itertools
 import os
 import re
-from dataclasses import dataclass
 
 from .._errors import InputError
 from ._batch import install, run_batch, run_installed
+from ._targets import Target, function_bytes
 
 #: Executor names accepted as strings.
 NAMES = ("serial", "processes")
 _ADDRESS = re.compile(r"^[\w.\-\[\]:]+:\d+$")
-
-
-@dataclass(frozen=True)
-class Target:
-    """A checked ``executor=`` argument, not yet connected."""
-
-    kind: str          # "serial", "processes", "client", "cluster", "address", "scheduler-file"
-    value: object = None
-    jobs: int = 1
 
 
 def _jobs(jobs, kind: str) -> int:
@@ -75,19 +66,6 @@ def resolve(executor, jobs=None) -> Target:
         "`executor` must be 'serial', 'processes', a Dask Client or cluster, a scheduler "
         f"address or a scheduler file (got {type(executor).__name__})"
     )
-
-
-def function_bytes(function) -> bytes:
-    """``function`` pickled for another process (cloudpickle: lambdas and closures too)."""
-    import cloudpickle
-
-    try:
-        return cloudpickle.dumps(function)
-    except Exception as exc:
-        raise InputError(
-            f"`function` cannot be sent to worker processes ({type(exc).__name__}: {exc}); "
-            "define it at module top level and keep what it holds picklable"
-        ) from None
 
 
 class _Deferred:

@@ -1,5 +1,5 @@
 """Ready-made point functions for :func:`scan`: law summaries, regimes, critical betas and
-extinction risk, over any parameter of a study (see :mod:`._study`).
+extinction risk, over any parameter of a model family (see :mod:`._family`).
 
 Each is a picklable callable ``f(point, rng) -> dict`` that also tells :func:`scan` which
 parameters it accepts (``check_parameters``) and how to label its outputs (``scan_labels``).
@@ -18,13 +18,14 @@ from ..laws._law import _sensed, derive_law
 from ..laws._payoffs import payoff_table
 from ..population._mean_field import REGIMES
 from ._quantity import Quantity
-from ._study import Study
+from .._deprecation import renamed_keyword
+from ._family import ModelFamily
 
 _BETA = "nats per payoff unit"
 
 
-def _phenotypes(study: Study, density: float):
-    model = study.default_model()
+def _phenotypes(family: ModelFamily, density: float):
+    model = family.default_model()
     if model is None:
         return None
     try:
@@ -35,18 +36,18 @@ def _phenotypes(study: Study, density: float):
 
 
 class _PointFunction:
-    """Shared parts: the study, the parameter check and the labels."""
+    """Shared parts: the model family, the parameter check and the labels."""
 
     law = True
     exclude: tuple = ()
 
     def check_parameters(self, names) -> None:
-        self.study.check(names, law=self.law, exclude=self.exclude)
+        self.family.check(names, law=self.law, exclude=self.exclude)
 
     @property
     def parameters(self) -> tuple:
         """Parameters this point function accepts in a grid."""
-        return tuple(n for n in self.study.names if n not in self.exclude)
+        return tuple(n for n in self.family.names if n not in self.exclude)
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}(parameters: {', '.join(self.parameters)})"
@@ -57,7 +58,7 @@ class LawSummary(_PointFunction):
 
     Parameters
     ----------
-    study : MeanField or callable
+    model : MeanField or callable
         The model (its payoff, environment and objective make the law), or a builder.
     densities : array_like
         Densities at which the law is summarised (strictly increasing, in [0, 1]).
@@ -68,12 +69,13 @@ class LawSummary(_PointFunction):
     (mean-field phenotype fractions), ``converged``; all along ``density``.
     """
 
-    def __init__(self, study, *, densities, fixed=None):
-        self.study = Study(study, fixed)
+    @renamed_keyword("study", "model")
+    def __init__(self, model, *, densities, fixed=None):
+        self.family = ModelFamily(model, fixed)
         self.densities = as_array(densities, "densities", ndim=1)
         if (self.densities < 0).any() or (self.densities > 1).any() or (np.diff(self.densities) <= 0).any():
             raise InputError("`densities` must be strictly increasing and lie in [0, 1]")
-        names = _phenotypes(self.study, float(self.densities[0]))
+        names = _phenotypes(self.family, float(self.densities[0]))
         along = ("density",)
         self.scan_labels = {
             "density": Quantity("population density", "1"),
@@ -88,10 +90,10 @@ class LawSummary(_PointFunction):
         }
 
     def __call__(self, point, rng):
-        values = self.study.values(point)
-        model = self.study.build(values)
+        values = self.family.values(point)
+        model = self.family.build(values)
         law = derive_law(model.payoff, model.environment, densities=self.densities,
-                         beta=self.study.beta(values), objective=model.objective,
+                         beta=self.family.beta(values), objective=model.objective,
                          phenotypes=model.phenotypes)
         return {
             "information": law.information_bits,
@@ -110,8 +112,9 @@ class RegimeSummary(_PointFunction):
     time) and ``positive_equilibria`` (how many).
     """
 
-    def __init__(self, study, *, fixed=None, points: int = 201):
-        self.study = Study(study, fixed)
+    @renamed_keyword("study", "model")
+    def __init__(self, model, *, fixed=None, points: int = 201):
+        self.family = ModelFamily(model, fixed)
         self.points = int(points)
         self.scan_labels = {
             "regime": Quantity(f"mean-field regime ({', '.join(REGIMES)})"),
@@ -122,9 +125,9 @@ class RegimeSummary(_PointFunction):
         }
 
     def __call__(self, point, rng):
-        values = self.study.values(point)
-        model = self.study.build(values)
-        beta = self.study.beta(values)
+        values = self.family.values(point)
+        model = self.family.build(values)
+        beta = self.family.beta(values)
         found = model.equilibria(beta, points=self.points)
         stable = [e.density for e in found[1:] if e.stable]
         threshold = model.allee_threshold(beta, points=self.points)
@@ -147,8 +150,9 @@ class CriticalBetas(_PointFunction):
     law = False
     exclude = ("beta", "cost_per_bit")
 
-    def __init__(self, study, *, beta_min, beta_max, fixed=None):
-        self.study = Study(study, fixed)
+    @renamed_keyword("study", "model")
+    def __init__(self, model, *, beta_min, beta_max, fixed=None):
+        self.family = ModelFamily(model, fixed)
         self.beta_min, self.beta_max = float(beta_min), float(beta_max)
         if not 0 <= self.beta_min < self.beta_max:
             raise InputError(f"`beta_max` must exceed `beta_min` >= 0 (got {beta_min!r}, {beta_max!r})")
@@ -159,7 +163,7 @@ class CriticalBetas(_PointFunction):
         }
 
     def __call__(self, point, rng):
-        model = self.study.build(self.study.values(point))
+        model = self.family.build(self.family.values(point))
         found = model.critical_betas(self.beta_min, self.beta_max)
 
         def first(kind):
@@ -195,8 +199,9 @@ class ExtinctionRisk(_PointFunction):
     Karlin & Taylor (1975), *A First Course in Stochastic Processes*, 2nd ed., ch. 4.
     """
 
-    def __init__(self, study, *, sites, initial, target, fixed=None):
-        self.study = Study(study, fixed)
+    @renamed_keyword("study", "model")
+    def __init__(self, model, *, sites, initial, target, fixed=None):
+        self.family = ModelFamily(model, fixed)
         self.sites = _whole(sites, "sites", 2)
         self.target = _whole(target, "target", 2)
         self.initial = _whole(initial, "initial", 1)
@@ -215,10 +220,10 @@ class ExtinctionRisk(_PointFunction):
         key = tuple(sorted(values.items()))
         if key in self._rates:
             return self._rates[key]
-        model = self.study.build(values)
+        model = self.family.build(values)
         if model.tau is not None:
             raise InputError("ExtinctionRisk uses the fast-switching limit: build the model with tau=None")
-        beta = self.study.beta(values)
+        beta = self.family.beta(values)
         chance = np.full(self.target + 1, np.nan)
         for n in range(1, self.target):
             rho = n / self.sites
@@ -238,7 +243,7 @@ class ExtinctionRisk(_PointFunction):
         return state
 
     def __call__(self, point, rng):
-        chance = self.birth_probabilities(self.study.values(point))
+        chance = self.birth_probabilities(self.family.values(point))
         n, steps = self.initial, 0
         while 0 < n < self.target:
             if np.isnan(chance[n]):

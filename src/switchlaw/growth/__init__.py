@@ -2,10 +2,11 @@
 environment fluctuates — bet hedging, the value of a cue, the price of sensing, and growth
 with phenotype switching in discrete generations and in continuous time."""
 
+from .._deprecation import renamed_attribute
 from ._bet_hedging import bet_hedging, cue_value
 from ._continuous import continuous_growth, switching_generator
 from ._cues import symmetric_cue
-from ._environments import MarkovEnvironment, PeriodicEnvironment, SwitchingEnvironment
+from ._environments import MarkovHabitat, PeriodicHabitat, SwitchingHabitat
 from ._generations import generation_growth
 from ._growth_rate import growth_rate
 from ._results import BetHedging, CueValue, GrowthEstimate, SensingTradeoff, SwitchingOptimum
@@ -16,10 +17,10 @@ __all__ = [
     "BetHedging",
     "CueValue",
     "GrowthEstimate",
-    "MarkovEnvironment",
-    "PeriodicEnvironment",
+    "MarkovHabitat",
+    "PeriodicHabitat",
     "SensingTradeoff",
-    "SwitchingEnvironment",
+    "SwitchingHabitat",
     "SwitchingOptimum",
     "bet_hedging",
     "continuous_growth",
@@ -31,3 +32,9 @@ __all__ = [
     "switching_generator",
     "symmetric_cue",
 ]
+
+#: Old names of the habitat classes (the fluctuating environment of growth; the sensed
+#: environment of the decision problem keeps "environment"), kept for one release.
+_RENAMED = {"MarkovEnvironment": "MarkovHabitat", "PeriodicEnvironment": "PeriodicHabitat",
+            "SwitchingEnvironment": "SwitchingHabitat"}
+__getattr__ = renamed_attribute(__name__, _RENAMED, globals())

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .._deprecation import renamed_keyword
 from .._validate import as_distribution, as_nonnegative
 from ..decision._minimum_information import METHODS, _unique_phenotypes
 from ..decision._problem import Reduced
@@ -44,7 +45,8 @@ def log_optimal(fitness: np.ndarray, weights: np.ndarray, *, tol: float, max_ite
     return strategy, record.gap_nats, record.iterations, record.converged, record.message
 
 
-def bet_hedging(fitness, env, *, cue=None, tol: float = 1e-12, max_iter: int = 500) -> BetHedging:
+@renamed_keyword("env", "habitat")
+def bet_hedging(fitness, habitat, *, cue=None, tol: float = 1e-12, max_iter: int = 500) -> BetHedging:
     """The strategy that maximises long-run growth in environments independent across
     generations, and its growth rate.
 
@@ -52,7 +54,7 @@ def bet_hedging(fitness, env, *, cue=None, tol: float = 1e-12, max_iter: int = 5
     ----------
     fitness : array_like, shape (environments, phenotypes)
         Offspring per individual, >= 0.
-    env : array_like, shape (environments,), or an environment with ``.probs``
+    habitat : array_like, shape (environments,), or an environment with ``.probs``
     cue : array_like, shape (environments, cue states), optional
         Sensing channel ``cue[e, c]``; the optimal policy is then ``[cue_state, phenotype]``.
         A cue state that never occurs gets the optimal strategy without a cue.
@@ -85,7 +87,7 @@ def bet_hedging(fitness, env, *, cue=None, tol: float = 1e-12, max_iter: int = 5
     >>> result.strategy.round(9).tolist()
     [0.7, 0.3]
     """
-    p = as_distribution(env, "env")
+    p = as_distribution(habitat, "habitat")
     f = check_fitness(fitness, p.size, p > 0)
     tol = as_nonnegative(tol, "tol")
     max_iter = check_count(max_iter, "max_iter")
@@ -118,13 +120,14 @@ def bet_hedging(fitness, env, *, cue=None, tol: float = 1e-12, max_iter: int = 5
     )
 
 
-def cue_value(fitness, env, cue, *, tol: float = 1e-12) -> CueValue:
+@renamed_keyword("env", "habitat")
+def cue_value(fitness, habitat, cue, *, tol: float = 1e-12) -> CueValue:
     """The fitness value of a cue: optimal growth with it minus optimal growth without it.
 
     Parameters
     ----------
     fitness : array_like, shape (environments, phenotypes)
-    env : array_like, shape (environments,), or an environment with ``.probs``
+    habitat : array_like, shape (environments,), or an environment with ``.probs``
     cue : array_like, shape (environments, cue states)
     tol : float
         Certified tolerance of each optimisation (nats per generation).
@@ -155,11 +158,11 @@ def cue_value(fitness, env, cue, *, tol: float = 1e-12) -> CueValue:
     >>> round(value.value_bits, 8), round(value.information_bits, 8)
     (0.53100441, 0.53100441)
     """
-    with_cue = bet_hedging(fitness, env, cue=cue, tol=tol)
-    without_cue = bet_hedging(fitness, env, tol=tol)
+    with_cue = bet_hedging(fitness, habitat, cue=cue, tol=tol)
+    without_cue = bet_hedging(fitness, habitat, tol=tol)
     return CueValue(
         value_nats=with_cue.growth_rate - without_cue.growth_rate,
-        information_bits=mutual_information(env, cue, unit="bits"),
+        information_bits=mutual_information(habitat, cue, unit="bits"),
         with_cue=with_cue,
         without_cue=without_cue,
     )

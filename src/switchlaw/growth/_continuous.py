@@ -6,11 +6,12 @@ from __future__ import annotations
 import numpy as np
 from scipy.linalg import expm
 
+from .._deprecation import renamed_keyword
 from .._errors import InputError
 from .._validate import _show, as_positive, as_stochastic_matrix
 from ._batch_means import batch_means
 from ._checks import check_count, check_generator, check_rates, check_seed
-from ._environments import PeriodicEnvironment, SwitchingEnvironment, _switching_path
+from ._environments import PeriodicHabitat, SwitchingHabitat, _switching_path
 from ._products import log_spectral_radius, principal_eigenvalue
 from ._results import GrowthEstimate
 
@@ -60,42 +61,42 @@ def growth_matrices(rates: np.ndarray, generators: np.ndarray) -> np.ndarray:
     return matrices
 
 
-def check_continuous(rates, switching, env) -> tuple[np.ndarray, np.ndarray]:
+def check_continuous(rates, switching, habitat) -> tuple[np.ndarray, np.ndarray]:
     """Validated growth matrices ``A[e]`` and time fractions of the states."""
     g = check_rates(rates)
-    if isinstance(env, PeriodicEnvironment):
-        if env.states.max() >= g.shape[0]:
+    if isinstance(habitat, PeriodicHabitat):
+        if habitat.states.max() >= g.shape[0]:
             raise InputError(
-                f"`env.states` must index the rows of `rates` (0 to {g.shape[0] - 1}) "
-                f"(got state {int(env.states.max())})"
+                f"`habitat.states` must index the rows of `rates` (0 to {g.shape[0] - 1}) "
+                f"(got state {int(habitat.states.max())})"
             )
-        fractions = env.time_fractions(g.shape[0])
-    elif isinstance(env, SwitchingEnvironment):
-        if env.n_states != g.shape[0]:
+        fractions = habitat.time_fractions(g.shape[0])
+    elif isinstance(habitat, SwitchingHabitat):
+        if habitat.n_states != g.shape[0]:
             raise InputError(
-                f"`rates` must have one row per environment state ({env.n_states}) "
+                f"`rates` must have one row per environment state ({habitat.n_states}) "
                 f"(got shape {g.shape})"
             )
-        fractions = env.probs
+        fractions = habitat.probs
     else:
         raise InputError(
-            f"`env` must be a PeriodicEnvironment or a SwitchingEnvironment (got {_show(env)})"
+            f"`habitat` must be a PeriodicHabitat or a SwitchingHabitat (got {_show(habitat)})"
         )
     generators = check_generator(switching, g.shape[0], g.shape[1])
     return growth_matrices(g, generators), fractions
 
 
-def periodic_rate(matrices: np.ndarray, env: PeriodicEnvironment) -> float:
+def periodic_rate(matrices: np.ndarray, habitat: PeriodicHabitat) -> float:
     """``log rho(expm(A_L T_L) ... expm(A_1 T_1)) / sum T``, each exponential shifted by its
     principal eigenvalue so that it neither overflows nor vanishes."""
     shifts = [principal_eigenvalue(a) for a in matrices]
     eye = np.eye(matrices.shape[1])
 
     def factors():
-        for e, duration in zip(env.states, env.durations):
+        for e, duration in zip(habitat.states, habitat.durations):
             yield expm((matrices[e] - shifts[e] * eye) * duration), shifts[e] * duration
 
-    return log_spectral_radius(factors()) / env.period
+    return log_spectral_radius(factors()) / habitat.period
 
 
 def propagators(matrices: np.ndarray, shifts: np.ndarray, states: np.ndarray,
@@ -138,10 +139,11 @@ def simulated_rate(matrices, states, durations, burn: int, batches: int):
     return batch_means(increments[burn:], durations[burn:], batches)
 
 
+@renamed_keyword("env", "habitat")
 def continuous_growth(
     rates,
     switching,
-    env,
+    habitat,
     *,
     epochs: int = 20_000,
     batches: int = 20,
@@ -157,7 +159,7 @@ def continuous_growth(
         Switching rates ``[from, to]`` per unit time: constant (stochastic switching), or one
         matrix per environment state (a responsive law, e.g. from :func:`switching_generator`).
         The diagonal is 0 or minus the row sum.
-    env : PeriodicEnvironment or SwitchingEnvironment
+    habitat : PeriodicHabitat or SwitchingHabitat
     epochs : int
         Environment epochs simulated after a burn-in of 5 % more (switching environments).
     batches : int
@@ -188,15 +190,15 @@ def continuous_growth(
     --------
     A phenotype growing at 1 in state 0 and at -1 in state 1, held for 3 and 1 time units:
 
-    >>> env = PeriodicEnvironment([0, 1], [3.0, 1.0])
-    >>> continuous_growth([[1.0], [-1.0]], [[0.0]], env).rate
+    >>> habitat = PeriodicHabitat([0, 1], [3.0, 1.0])
+    >>> continuous_growth([[1.0], [-1.0]], [[0.0]], habitat).rate
     0.5
     """
-    matrices, _ = check_continuous(rates, switching, env)
-    if isinstance(env, PeriodicEnvironment):
-        return GrowthEstimate(periodic_rate(matrices, env), 0.0, "spectral radius",
+    matrices, _ = check_continuous(rates, switching, habitat)
+    if isinstance(habitat, PeriodicHabitat):
+        return GrowthEstimate(periodic_rate(matrices, habitat), 0.0, "spectral radius",
                               message="periodic environment")
-    if env.n_states == 1:
+    if habitat.n_states == 1:
         return GrowthEstimate(principal_eigenvalue(matrices[0]), 0.0, "principal eigenvalue",
                               message="constant environment")
     epochs = check_count(epochs, "epochs")
@@ -205,7 +207,7 @@ def continuous_growth(
         raise InputError(f"`epochs` must be at least `batches` ({batches}) (got {epochs})")
     rng = check_seed(seed, "when the growth rate is estimated by simulation")
     burn = int(np.ceil(BURN_IN * epochs))
-    states, durations = _switching_path(env.rates, env.probs, burn + epochs, rng)
+    states, durations = _switching_path(habitat.rates, habitat.probs, burn + epochs, rng)
     result = simulated_rate(matrices, states, durations, burn, batches)
     if result is None:
         return GrowthEstimate(-np.inf, 0.0, "simulation", epochs, batches, "the population died out")

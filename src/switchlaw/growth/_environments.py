@@ -2,7 +2,7 @@
 periodic sequences.
 
 Environments independent across generations need no object: their probability vector
-``env[e]`` is the whole description. The objects here carry ``.probs``, the long-run fraction
+``habitat[e]`` is the whole description. The objects here carry ``.probs``, the long-run fraction
 of generations (or of time) spent in each state, so they can be passed wherever switchlaw
 expects environment probabilities.
 """
@@ -42,7 +42,7 @@ def _stationary(generator: np.ndarray) -> np.ndarray:
 
 
 @dataclass(frozen=True, repr=False)
-class MarkovEnvironment:
+class MarkovHabitat:
     """An environment that changes between generations as a Markov chain.
 
     Parameters
@@ -59,8 +59,8 @@ class MarkovEnvironment:
 
     Examples
     --------
-    >>> env = MarkovEnvironment([[0.9, 0.1], [0.3, 0.7]])
-    >>> env.probs.round(6).tolist()
+    >>> habitat = MarkovHabitat([[0.9, 0.1], [0.3, 0.7]])
+    >>> habitat.probs.round(6).tolist()
     [0.75, 0.25]
     """
 
@@ -89,7 +89,7 @@ class MarkovEnvironment:
         return _markov_path(self.transition, self.probs, generations, rng, start)
 
     def __repr__(self) -> str:
-        return f"MarkovEnvironment({self.n_states} states, stationary {_show(self.probs)})"
+        return f"MarkovHabitat({self.n_states} states, stationary {_show(self.probs)})"
 
 
 def _markov_path(transition, probs, length, rng, start=None) -> np.ndarray:
@@ -107,7 +107,7 @@ def _markov_path(transition, probs, length, rng, start=None) -> np.ndarray:
 
 
 @dataclass(frozen=True, repr=False)
-class SwitchingEnvironment:
+class SwitchingHabitat:
     """An environment that switches between states at constant rates (continuous time).
 
     Parameters
@@ -127,8 +127,8 @@ class SwitchingEnvironment:
 
     Examples
     --------
-    >>> env = SwitchingEnvironment([[0.0, 0.1], [0.4, 0.0]])
-    >>> env.probs.round(6).tolist(), env.mean_durations.tolist()
+    >>> habitat = SwitchingHabitat([[0.0, 0.1], [0.4, 0.0]])
+    >>> habitat.probs.round(6).tolist(), habitat.mean_durations.tolist()
     ([0.8, 0.2], [10.0, 2.5])
     """
 
@@ -167,7 +167,7 @@ class SwitchingEnvironment:
 
     def __repr__(self) -> str:
         return (
-            f"SwitchingEnvironment({self.n_states} states, stationary {_show(self.probs)}, "
+            f"SwitchingHabitat({self.n_states} states, stationary {_show(self.probs)}, "
             f"mean durations {_show(self.mean_durations)})"
         )
 
@@ -182,7 +182,7 @@ def _switching_path(generator, probs, epochs, rng) -> tuple[np.ndarray, np.ndarr
 
 
 @dataclass(frozen=True, repr=False)
-class PeriodicEnvironment:
+class PeriodicHabitat:
     """A periodic sequence of environment states, each held for a fixed duration.
 
     Parameters
@@ -196,8 +196,8 @@ class PeriodicEnvironment:
 
     Examples
     --------
-    >>> env = PeriodicEnvironment([0, 1], [30.0, 10.0])
-    >>> env.period, env.time_fractions(2).tolist()
+    >>> habitat = PeriodicHabitat([0, 1], [30.0, 10.0])
+    >>> habitat.period, habitat.time_fractions(2).tolist()
     (40.0, [0.75, 0.25])
     """
 
@@ -236,4 +236,4 @@ class PeriodicEnvironment:
         return np.bincount(self.states, weights=self.durations, minlength=n_states) / self.period
 
     def __repr__(self) -> str:
-        return f"PeriodicEnvironment(states {self.states.tolist()}, durations {_show(self.durations)})"
+        return f"PeriodicHabitat(states {self.states.tolist()}, durations {_show(self.durations)})"

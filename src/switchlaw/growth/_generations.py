@@ -5,11 +5,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from .._deprecation import renamed_keyword
 from .._errors import InputError
 from .._validate import as_array, as_distribution, choice
 from ._batch_means import batch_means
 from ._checks import check_count, check_cue, check_fitness, check_inheritance, check_seed
-from ._environments import MarkovEnvironment, PeriodicEnvironment, _markov_path
+from ._environments import MarkovHabitat, PeriodicHabitat, _markov_path
 from ._growth_rate import memoryless_growth
 from ._products import log_spectral_radius
 from ._results import GrowthEstimate
@@ -21,33 +22,34 @@ METHODS = ("auto", "simulation")
 BURN_IN = 0.05
 
 
-def _environment(env, n_rows: int):
+def _environment(habitat, n_rows: int):
     """``(kind, weights, occurs)``: the long-run fraction of generations in each state and
     which states occur, for an independent, Markov or periodic environment."""
-    if isinstance(env, PeriodicEnvironment):
-        if (env.durations != np.round(env.durations)).any():
-            i = int(np.argmax(env.durations != np.round(env.durations)))
+    if isinstance(habitat, PeriodicHabitat):
+        if (habitat.durations != np.round(habitat.durations)).any():
+            i = int(np.argmax(habitat.durations != np.round(habitat.durations)))
             raise InputError(
-                f"`env.durations` must be whole numbers of generations; entry {i} is "
-                f"{float(env.durations[i])!r}"
+                f"`habitat.durations` must be whole numbers of generations; entry {i} is "
+                f"{float(habitat.durations[i])!r}"
             )
-        if env.states.max() >= n_rows:
+        if habitat.states.max() >= n_rows:
             raise InputError(
-                f"`env.states` must index the rows of `fitness` (0 to {n_rows - 1}) "
-                f"(got state {int(env.states.max())})"
+                f"`habitat.states` must index the rows of `fitness` (0 to {n_rows - 1}) "
+                f"(got state {int(habitat.states.max())})"
             )
-        fractions = env.time_fractions(n_rows)
+        fractions = habitat.time_fractions(n_rows)
         return "periodic", fractions, fractions > 0
-    if isinstance(env, MarkovEnvironment):
-        probs = env.probs
+    if isinstance(habitat, MarkovHabitat):
+        probs = habitat.probs
         return "markov", probs, np.ones(probs.size, dtype=bool)
-    probs = as_distribution(env, "env")
+    probs = as_distribution(habitat, "habitat")
     return "independent", probs, probs > 0
 
 
+@renamed_keyword("env", "habitat")
 def generation_growth(
     fitness,
-    env,
+    habitat,
     strategy,
     *,
     cue=None,
@@ -62,7 +64,7 @@ def generation_growth(
     ----------
     fitness : array_like, shape (environments, phenotypes)
         Offspring per individual, >= 0.
-    env : array_like, MarkovEnvironment or PeriodicEnvironment
+    habitat : array_like, MarkovHabitat or PeriodicHabitat
         Environment probabilities (independent across generations), a Markov chain, or a
         periodic sequence with durations in whole generations.
     strategy : array_like
@@ -115,7 +117,7 @@ def generation_growth(
     >>> estimate.method, round(estimate.rate, 12)
     ('closed form', 0.223143551314)
     """
-    kind, weights, occurs = _environment(env, as_array(fitness, "fitness", ndim=2).shape[0])
+    kind, weights, occurs = _environment(habitat, as_array(fitness, "fitness", ndim=2).shape[0])
     f = check_fitness(fitness, weights.size, occurs)
     channel = None if cue is None else check_cue(cue, weights.size)
     switching, memoryless = check_inheritance(
@@ -130,10 +132,10 @@ def generation_growth(
     if method == "auto" and kind == "periodic" and channel is None:
         factors = (
             (f[e][:, None] * switching[0].T, 0.0)
-            for e, d in zip(env.states, env.durations.astype(int))
+            for e, d in zip(habitat.states, habitat.durations.astype(int))
             for _ in range(d)
         )
-        rate = log_spectral_radius(factors) / env.period
+        rate = log_spectral_radius(factors) / habitat.period
         return GrowthEstimate(rate, 0.0, "spectral radius", message="periodic environment")
     generations = check_count(generations, "generations")
     batches = check_count(batches, "batches", 2)
@@ -143,7 +145,7 @@ def generation_growth(
         )
     rng = check_seed(seed, "when the growth rate is estimated by simulation")
     burn = int(np.ceil(BURN_IN * generations))
-    states = _sample_states(kind, env, weights, burn + generations, rng)
+    states = _sample_states(kind, habitat, weights, burn + generations, rng)
     if channel is None:
         cues = np.zeros(states.size, dtype=np.intp)
     else:
@@ -161,12 +163,12 @@ def generation_growth(
     )
 
 
-def _sample_states(kind, env, weights, length, rng) -> np.ndarray:
+def _sample_states(kind, habitat, weights, length, rng) -> np.ndarray:
     if kind == "independent":
         return rng.choice(weights.size, size=length, p=weights)
     if kind == "markov":
-        return _markov_path(env.transition, weights, length, rng)
-    one_period = np.repeat(env.states, env.durations.astype(int))
+        return _markov_path(habitat.transition, weights, length, rng)
+    one_period = np.repeat(habitat.states, habitat.durations.astype(int))
     return np.resize(one_period, length)
 
 

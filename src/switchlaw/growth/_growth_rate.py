@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .._deprecation import renamed_keyword
 from .._validate import as_distribution
 from ._checks import check_cue, check_fitness, check_policy
 
@@ -24,10 +25,11 @@ def memoryless_growth(fitness: np.ndarray, weights: np.ndarray, policy: np.ndarr
     return float(joint[used] @ np.log(factor[used]))
 
 
-def growth_rate(fitness, env, strategy, *, cue=None) -> float:
+@renamed_keyword("env", "habitat")
+def growth_rate(fitness, habitat, strategy, *, cue=None) -> float:
     """Long-run growth rate of a bet-hedging lineage (nats per generation).
 
-    Each generation the environment is drawn afresh from ``env``; a fraction ``strategy[x]``
+    Each generation the environment is drawn afresh from ``habitat``; a fraction ``strategy[x]``
     of offspring take phenotype ``x`` (with a cue: ``strategy[c, x]`` of those born when the
     cue reads ``c``), whatever their parent's phenotype, and each individual of phenotype
     ``x`` leaves ``fitness[e, x]`` offspring in environment ``e``.
@@ -37,8 +39,8 @@ def growth_rate(fitness, env, strategy, *, cue=None) -> float:
     fitness : array_like, shape (environments, phenotypes)
         Offspring per individual, >= 0; every environment that occurs needs a phenotype with
         positive fitness.
-    env : array_like, shape (environments,), or an environment with ``.probs``
-        Environment probabilities. A :class:`MarkovEnvironment` also works: its stationary
+    habitat : array_like, shape (environments,), or an environment with ``.probs``
+        Environment probabilities. A :class:`MarkovHabitat` also works: its stationary
         distribution gives the exact long-run growth of a memoryless strategy (ergodic
         theorem).
     strategy : array_like
@@ -74,7 +76,7 @@ def growth_rate(fitness, env, strategy, *, cue=None) -> float:
     >>> growth_rate([[2.0, 0.0], [0.0, 2.0]], [0.5, 0.5], [0.5, 0.5])
     0.0
     """
-    weights = as_distribution(env, "env")
+    weights = as_distribution(habitat, "habitat")
     f = check_fitness(fitness, weights.size, weights > 0)
     channel = None if cue is None else check_cue(cue, weights.size)
     policy = check_policy(strategy, f.shape[1], None if channel is None else channel.shape[1])

@@ -6,6 +6,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import minimize_scalar
 
+from .._deprecation import renamed_keyword
 from .._errors import InputError
 from .._validate import as_array, as_distribution, as_nonnegative, as_payoff
 from ..decision import solve, tradeoff
@@ -14,19 +15,20 @@ from ._growth_rate import memoryless_growth
 from ._results import SensingTradeoff
 
 
-def posterior_mean_fitness(fitness: np.ndarray, env: np.ndarray, cue: np.ndarray) -> np.ndarray:
+def posterior_mean_fitness(fitness: np.ndarray, habitat: np.ndarray, cue: np.ndarray) -> np.ndarray:
     """``E[f(E, x) | c]`` per cue state (the prior mean where a cue state never occurs)."""
-    joint = env[:, None] * cue
+    joint = habitat[:, None] * cue
     cue_probs = joint.sum(axis=0)
-    mean = np.tile(env @ fitness, (cue.shape[1], 1))
+    mean = np.tile(habitat @ fitness, (cue.shape[1], 1))
     seen = cue_probs > 0
     mean[seen] = (joint[:, seen] / cue_probs[seen]).T @ fitness
     return mean
 
 
+@renamed_keyword("env", "habitat")
 def sensing_tradeoff(
     fitness,
-    env,
+    habitat,
     cue,
     betas,
     *,
@@ -39,7 +41,7 @@ def sensing_tradeoff(
     ----------
     fitness : array_like, shape (environments, phenotypes)
         Offspring per individual, >= 0.
-    env : array_like, shape (environments,), or an environment with ``.probs``
+    habitat : array_like, shape (environments,), or an environment with ``.probs``
         Environments independent across generations.
     cue : array_like, shape (environments, cue states)
         Sensing channel ``cue[e, c]``; the identity matrix for a cell that sees its
@@ -75,7 +77,7 @@ def sensing_tradeoff(
     >>> bool(scan.best_net_growth >= scan.net_growth.max())
     True
     """
-    p = as_distribution(env, "env")
+    p = as_distribution(habitat, "habitat")
     f = check_fitness(fitness, p.size, p > 0)
     channel = check_cue(cue, p.size)
     grid = as_array(betas, "betas", ndim=1)

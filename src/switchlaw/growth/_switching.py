@@ -5,24 +5,25 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import minimize
 
+from .._deprecation import renamed_keyword
 from .._errors import InputError
 from .._validate import as_array
 from ._checks import check_count, check_rates, check_seed
 from ._continuous import BURN_IN, check_continuous, periodic_rate, simulated_rate
-from ._environments import PeriodicEnvironment, _switching_path
+from ._environments import PeriodicHabitat, _switching_path
 from ._results import GrowthEstimate, SwitchingOptimum
 
 #: Equal rates tried across the bounds (log-spaced) to pick the optimiser's starting point.
 SCAN_POINTS = 19
 
 
-def _bounds(bounds, env) -> tuple[float, float]:
+def _bounds(bounds, habitat) -> tuple[float, float]:
     """Rate bounds (per unit time): given, or 1e-6 to 1e3 over the mean duration of a state."""
     if bounds is None:
-        if isinstance(env, PeriodicEnvironment):
-            mean_duration = env.period / env.durations.size
+        if isinstance(habitat, PeriodicHabitat):
+            mean_duration = habitat.period / habitat.durations.size
         else:
-            mean_duration = float(env.probs @ env.mean_durations)
+            mean_duration = float(habitat.probs @ habitat.mean_durations)
         return 1e-6 / mean_duration, 1e3 / mean_duration
     low, high = as_array(bounds, "bounds", ndim=1) if np.size(bounds) == 2 else (None, None)
     if low is None or not 0 < low < high:
@@ -30,9 +31,10 @@ def _bounds(bounds, env) -> tuple[float, float]:
     return float(low), float(high)
 
 
+@renamed_keyword("env", "habitat")
 def optimal_switching(
     rates,
-    env,
+    habitat,
     *,
     bounds=None,
     epochs: int = 5_000,
@@ -45,7 +47,7 @@ def optimal_switching(
     ----------
     rates : array_like, shape (environments, phenotypes)
         Per-capita growth rate of each phenotype in each environment (per unit time).
-    env : PeriodicEnvironment or SwitchingEnvironment
+    habitat : PeriodicHabitat or SwitchingHabitat
     bounds : (float, float), optional
         Range searched for every switching rate (per unit time); default ``1e-6`` to ``1e3``
         over the mean duration of an environment state.
@@ -79,20 +81,20 @@ def optimal_switching(
 
     Examples
     --------
-    >>> from switchlaw.growth import PeriodicEnvironment
-    >>> env = PeriodicEnvironment([0, 1], [20.0, 50.0])
-    >>> best = optimal_switching([[1.0, -1.0], [-1.0, 1.0]], env)
+    >>> from switchlaw.growth import PeriodicHabitat
+    >>> habitat = PeriodicHabitat([0, 1], [20.0, 50.0])
+    >>> best = optimal_switching([[1.0, -1.0], [-1.0, 1.0]], habitat)
     >>> [round(float(k), 2) for k in (best.rates[0, 1] * 20.0, best.rates[1, 0] * 50.0)]
     [1.04, 1.04]
     """
     g = check_rates(rates)
     n = g.shape[1]
-    base, fractions = check_continuous(g, np.zeros((n, n)), env)
+    base, fractions = check_continuous(g, np.zeros((n, n)), habitat)
     if n < 2:
         raise InputError(f"`rates` must have at least two phenotypes to switch between (got {n})")
-    if not isinstance(env, PeriodicEnvironment) and env.n_states < 2:
-        raise InputError("`env` must have at least two states for switching to matter (got 1)")
-    low, high = _bounds(bounds, env)
+    if not isinstance(habitat, PeriodicHabitat) and habitat.n_states < 2:
+        raise InputError("`habitat` must have at least two states for switching to matter (got 1)")
+    low, high = _bounds(bounds, habitat)
     off = ~np.eye(n, dtype=bool)
 
     def generator(log_rates: np.ndarray) -> np.ndarray:
@@ -101,16 +103,16 @@ def optimal_switching(
         k[np.arange(n), np.arange(n)] = -k.sum(axis=1)
         return k
 
-    if isinstance(env, PeriodicEnvironment):
+    if isinstance(habitat, PeriodicHabitat):
         def growth(log_rates) -> GrowthEstimate:
-            rate = periodic_rate(base + generator(log_rates).T[None], env)
+            rate = periodic_rate(base + generator(log_rates).T[None], habitat)
             return GrowthEstimate(rate, 0.0, "spectral radius", message="periodic environment")
     else:
         epochs = check_count(epochs, "epochs")
         batches = check_count(batches, "batches", 2)
         rng = check_seed(seed, "when the growth rate is estimated by simulation")
         burn = int(np.ceil(BURN_IN * epochs))
-        states, durations = _switching_path(env.rates, env.probs, burn + epochs, rng)
+        states, durations = _switching_path(habitat.rates, habitat.probs, burn + epochs, rng)
 
         def growth(log_rates) -> GrowthEstimate:
             matrices = base + generator(log_rates).T[None]

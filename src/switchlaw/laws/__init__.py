@@ -17,10 +17,11 @@ from ._environments import (
 )
 from ._formula import FormulaFit, fit_formula
 from ._law import SwitchingLaw, derive_law
-from ._payoffs import Hill, Linear, Threshold
+from ._payoffs import DensityDependent, Hill, Linear, Threshold
 
 __all__ = [
     "BINNING_RULES",
+    "DensityDependent",
     "Environment",
     "FormulaFit",
     "GaussianReceptor",

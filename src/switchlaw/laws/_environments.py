@@ -293,7 +293,7 @@ def continuous_signal(distribution, edges, *, receptor=None, description: str = 
 BINNING_RULES = ("auto", "fd", "sturges", "doane", "scott", "rice", "sqrt", "stone")
 
 
-def empirical(samples, *, bins="fd", description: str = "") -> Environment:
+def empirical(samples, *, bins="fd", receptor=None, description: str = "") -> Environment:
     """A histogram of measured samples (e.g. local densities from images).
 
     Parameters
@@ -303,6 +303,10 @@ def empirical(samples, *, bins="fd", description: str = "") -> Environment:
     bins : str or array_like
         A binning rule (one of :data:`BINNING_RULES`, numpy's definitions; default
         Freedman–Diaconis ``"fd"``) or explicit increasing edges covering every sample.
+    receptor : GaussianReceptor or PoissonReceptor, optional
+        Noisy sensing of the measured signal, as in :func:`continuous_signal`: the histogram
+        gives the true states (bin centres) and their probabilities, the receptor the channel
+        ``W(s | y)`` from each bin's centre to the sensed states; the cell decides on ``s``.
     description : str, optional
     """
     data = as_array(samples, "samples", ndim=1)
@@ -325,10 +329,19 @@ def empirical(samples, *, bins="fd", description: str = "") -> Environment:
         rule = "given edges"
     counts, edges = np.histogram(data, bins=edges)
     probs = counts / counts.sum()
+    centres = 0.5 * (edges[1:] + edges[:-1])
+    text = description or f"histogram of {data.size} samples ({rule}, {probs.size} bins)"
+    if receptor is None:
+        return Environment(states=np.arange(probs.size), probs=probs, values=centres, kind="empirical",
+                           edges=edges, description=text)
+    if not hasattr(receptor, "channel"):
+        raise InputError(f"`receptor` must be a GaussianReceptor or a PoissonReceptor (got {type(receptor).__name__})")
+    channel = as_stochastic_matrix(receptor.channel(centres, edges), "receptor channel")
+    sensed = probs @ channel
     return Environment(
-        states=np.arange(probs.size), probs=probs, values=0.5 * (edges[1:] + edges[:-1]),
-        kind="empirical", edges=edges,
-        description=description or f"histogram of {data.size} samples ({rule}, {probs.size} bins)",
+        states=np.arange(sensed.size), probs=sensed, values=centres, kind="empirical", channel=channel,
+        true_probs=probs, edges=edges, description=text + " (noisy receptor)",
+        sensed_values=receptor.sensed_values(centres, edges),
     )
 
 

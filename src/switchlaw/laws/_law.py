@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
@@ -215,8 +215,9 @@ class SwitchingLaw:
 
 
 def _sensed(environment, rho: float) -> Environment:
-    env = environment(rho) if callable(environment) else environment
-    return as_environment(env, "environment")
+    """The environment at density ``rho``, carrying that density (for density-dependent payoffs)."""
+    env = as_environment(environment(rho) if callable(environment) else environment, "environment")
+    return env if env.density is not None else replace(env, density=float(rho))
 
 
 def decision_problem(payoff, environment, rho: float, phenotypes=None):

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Mapping
+from typing import Callable, Mapping
 
 import numpy as np
 
@@ -49,12 +49,53 @@ class Threshold:
         return np.where(np.asarray(v, dtype=float) >= self.level, self.above, self.below)
 
 
+@dataclass(frozen=True)
+class DensityDependent:
+    """A payoff of the signal value ``v`` and the population density ``rho``: ``function(v, rho)``.
+
+    Use it as a phenotype's entry in a payoff mapping. Wherever the law is derived (every
+    density of ``derive_law``'s grid, every density ``MeanField`` asks for) it is evaluated at
+    that density; the existing forms can be evaluated at the density inside it.
+
+    Parameters
+    ----------
+    function : callable ``(v, rho) -> payoff``
+        ``v`` the array of signal values of the true states, ``rho`` the density (a float in
+        [0, 1], occupied fraction of sites); returns payoff units, one per state or a scalar.
+
+    Examples
+    --------
+    Dividing pays in proportion to free space and to the number of occupied neighbours
+    (invented scenario); at density 0.5 and ``y = 2`` of 4 neighbours the payoff is
+    ``(1 - 0.5) * 2 / 4 = 0.25``:
+
+    >>> import switchlaw as sl
+    >>> payoff = {"divide": sl.DensityDependent(lambda v, rho: (1 - rho) * v / 4),
+    ...           "move": sl.Linear(slope=0.0)}
+    >>> law = sl.derive_law(payoff, lambda rho: sl.occupancy(4, rho), densities=[0.0, 0.5, 1.0],
+    ...                     beta=2.0, objective="max-entropy")
+    >>> round(float(law.probs(0.5)[2, 0]), 6)  # 1 / (1 + exp(-2 * 0.25))
+    0.622459
+    """
+
+    function: Callable
+
+    def __post_init__(self):
+        if not callable(self.function):
+            raise InputError(f"`function` must be callable as function(v, rho) (got {type(self.function).__name__})")
+
+    def at(self, density: float) -> Callable:
+        """The payoff at ``density`` as a function of the signal value alone."""
+        return lambda v: self.function(v, density)
+
+
 def payoff_table(payoff, environment: Environment, phenotypes=None, *, where: str = "") -> tuple[np.ndarray, tuple]:
     """The ``[true state, phenotype]`` payoff table for one environment, and phenotype names.
 
-    ``payoff`` is a table, a callable ``environment -> table``, or a mapping from phenotype
-    name to a function of the signal value (e.g. :class:`Linear`, :class:`Hill`,
-    :class:`Threshold`, or any ``v -> payoff`` callable).
+    ``payoff`` is a table, a callable ``environment -> table`` (it may read
+    ``environment.density``), or a mapping from phenotype name to a function of the signal
+    value (e.g. :class:`Linear`, :class:`Hill`, :class:`Threshold`, or any ``v -> payoff``
+    callable) or of the value and the density (:class:`DensityDependent`).
     """
     rows = environment.hidden_probs.size
     if isinstance(payoff, Mapping):
@@ -74,7 +115,15 @@ def payoff_table(payoff, environment: Environment, phenotypes=None, *, where: st
             values = values[:, 0]
         columns = []
         for name in names:
-            column = np.asarray(payoff[name](values), dtype=float)
+            entry = payoff[name]
+            if isinstance(entry, DensityDependent):
+                if environment.density is None:
+                    raise InputError(
+                        f"`payoff[{name!r}]` depends on density but the environment has none; derive the "
+                        "law over `densities` or give the Environment a `density`"
+                    )
+                entry = entry.at(float(environment.density))
+            column = np.asarray(entry(values), dtype=float)
             columns.append(column if column.shape == (rows,) else np.broadcast_to(column, (rows,)))
         table = np.column_stack(columns)
     elif callable(payoff):

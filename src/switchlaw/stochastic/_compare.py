@@ -13,7 +13,7 @@ def law_compartments(rules, initial: np.ndarray, times: np.ndarray) -> np.ndarra
     shape (k, phenotypes).
 
     ``rho_x' = b_x rho_x (1 - rho) - d_x rho_x + (rho f_x(rho) - rho_x) / tau`` with
-    ``f_x = sum_y p(y | rho) q(x | y, rho)`` (the law's fractions; domain notes §3–4): the
+    ``f_x = sum_y p(y | rho) q(x | y, rho)`` (the law's fractions, averaged over what cells sense): the
     equations of :class:`switchlaw.MeanField` without crowding death. Motility does not enter.
     """
     from scipy.integrate import solve_ivp

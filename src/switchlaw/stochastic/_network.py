@@ -68,7 +68,7 @@ class Outcome:
 def leap_size(a: np.ndarray, x: np.ndarray, V: np.ndarray, g: np.ndarray, epsilon: float) -> np.ndarray:
     """Largest leap meeting the leap condition, per row (Cao, Gillespie & Petzold 2006, eq. 33).
 
-    ``tau = min_i min( max(eps x_i / g_i, 1) / |mu_i|, max(eps x_i / g_i, 1)^2 / sigma_i^2 )``
+    ``leap_length = min_i min( max(eps x_i / g_i, 1) / |mu_i|, max(eps x_i / g_i, 1)^2 / sigma_i^2 )``
     with ``mu_i = sum_j v_ji a_j`` and ``sigma_i^2 = sum_j v_ji^2 a_j``: the expected relative
     change of every propensity over the leap is bounded by ``epsilon``.
     """
@@ -82,7 +82,7 @@ def leap_size(a: np.ndarray, x: np.ndarray, V: np.ndarray, g: np.ndarray, epsilo
 
 
 def boundary_leap(a: np.ndarray, V: np.ndarray, room: np.ndarray) -> np.ndarray:
-    """Largest ``tau`` with ``|mu| tau + 3 sqrt(sigma^2 tau) <= room`` for the total population."""
+    """Largest leap length ``h`` with ``|mu| h + 3 sqrt(sigma^2 h) <= room`` for the total population."""
     change = V.sum(axis=1)
     mu = np.abs(a @ change)
     sigma = np.sqrt(a @ (change * change))
@@ -90,8 +90,8 @@ def boundary_leap(a: np.ndarray, V: np.ndarray, room: np.ndarray) -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore"):
         root = (-3.0 * sigma + np.sqrt(9.0 * sigma**2 + 4.0 * mu * room)) / (2.0 * mu)
         only_spread = (room / (3.0 * sigma)) ** 2
-    tau = np.where(mu > 0, root**2, np.where(sigma > 0, only_spread, np.inf))
-    return np.where(np.isnan(tau), np.inf, tau)
+    leap_length = np.where(mu > 0, root**2, np.where(sigma > 0, only_spread, np.inf))
+    return np.where(np.isnan(leap_length), np.inf, leap_length)
 
 
 def run_network(
@@ -110,7 +110,7 @@ def run_network(
     ``method="exact"`` is Gillespie's direct method (Gillespie 1977): an exponential waiting
     time with the total propensity ``a0`` and one reaction chosen with probability
     ``a_j / a0``, two uniform numbers per event. ``method="tau-leap"`` fires Poisson numbers
-    ``K_j ~ Poisson(a_j tau)`` of every reaction (Gillespie 2001) with ``tau`` from
+    ``K_j ~ Poisson(a_j h)`` of every reaction (Gillespie 2001) with the leap length ``h`` from
     :func:`leap_size` (and :func:`boundary_leap` near a stopping boundary); a replicate takes an exact step instead when fewer than
     :data:`LEAP_MIN_EVENTS` events are expected or it holds fewer than :data:`LEAP_MIN_SIZE`
     individuals, and a leap that would end in an invalid state is rejected and retried with
@@ -169,16 +169,16 @@ def run_network(
         u = buffer.draw(blocks)
         leap = np.zeros(rows.size, dtype=bool)
         if leaping:
-            tau = np.minimum(leap_size(a, x, V, network.order(x), epsilon), cap)
-            tau = np.minimum(tau, boundary_leap(a, V, network.room(x)))
-            expected = np.where(live, tau, 0.0) * a0
+            leap_length = np.minimum(leap_size(a, x, V, network.order(x), epsilon), cap)
+            leap_length = np.minimum(leap_length, boundary_leap(a, V, network.room(x)))
+            expected = np.where(live, leap_length, 0.0) * a0
             leap = live & (expected >= LEAP_MIN_EVENTS) & (x.sum(axis=1) >= LEAP_MIN_SIZE)
             t_next = np.full(rows.size, np.inf)
             pending = nxt < k_out
             t_next[pending] = out_times[nxt[pending]]
             target = np.minimum(t_next, horizon)
-            landing = tau >= target - t
-            tau = np.where(landing, target - t, tau)
+            landing = leap_length >= target - t
+            leap_length = np.where(landing, target - t, leap_length)
         exact = live & ~leap
         # Exact steps: exponential waiting time, then one reaction (unless past the horizon).
         with np.errstate(divide="ignore"):
@@ -201,16 +201,16 @@ def run_network(
         t[past] = horizon
         # Tau-leaps.
         if leap.any():
-            lam = a * np.where(leap, tau, 0.0)[:, None]
+            lam = a * np.where(leap, leap_length, 0.0)[:, None]
             fired = streams.poisson(blocks, lam)
             where = np.flatnonzero(leap)
             proposal = x[where] + fired[where] @ V
             bad = network.invalid(proposal)
             good, rejected = where[~bad], where[bad]
             x[good] = proposal[~bad]
-            t[good] = np.where(landing[good], target[good], t[good] + tau[good])
+            t[good] = np.where(landing[good], target[good], t[good] + leap_length[good])
             cap[good] = np.inf
-            cap[rejected] = tau[rejected] / 2.0
+            cap[rejected] = leap_length[rejected] / 2.0
             leaps += good.size
             events += int(fired[good].sum())
         # Who is finished now.

@@ -117,9 +117,8 @@ def event_index(x: np.ndarray, u: np.ndarray, probs: np.ndarray, lower: np.ndarr
     The second value is a fresh uniform number given the event (used to pick a neighbour or a
     phenotype), so one draw serves both.
     """
-    event = np.zeros(x.shape, dtype=np.int64)
-    for edge in lower[:, 1:].T:  # the number of interval edges at or below u
-        event += edge.take(x) <= u
+    # The number of interval edges at or below u, all edges of a cell's row at once.
+    event = (lower[:, 1:].take(x, axis=0) <= u[:, None]).sum(axis=1)
     at = 5 * x + event
     width = probs.reshape(-1).take(at)
     inside = np.divide(u - lower.reshape(-1).take(at), width, out=np.zeros_like(u), where=width > 0)

@@ -30,6 +30,18 @@ from ._rules import Rules, event_index
 from ._streams import Streams
 
 
+#: Sites (replicates x lattice sites) up to which the classes of a sweep are resolved at once
+#: (:func:`_resolve_sweep`: a fixed number of numpy passes per sweep, which pays where the
+#: passes of the class-by-class loop are short); larger problems go class by class, which
+#: moves less memory. Measured at 64 x 64 (benchmarks/bench_stochastic.py): at once is faster
+#: up to about 4 replicates, class by class from about 16.
+_AT_ONCE_SITES = 16_384
+#: Sweeps whose random numbers are drawn at once for a single lattice resolved at once (more
+#: replicates gain nothing measurable from it), and the most uniform numbers such a batch may
+#: hold (512 kB, so that it stays in cache).
+_BATCH = 32
+_BATCH_NUMBERS = 65_536
+
 #: Processing order of events within a class: divide, move, die, decide (so that dividers and
 #: movers, which both look for a free neighbour, form one slice). Indexed by event code.
 _ORDER = np.array([0, 2, 1, 3, 3])
@@ -110,6 +122,51 @@ class _SweepDraws:
             u = np.concatenate([u] + [e[1] for e in extra])
         return self.rank, rr, ss, u
 
+    def batch(self, active: np.ndarray, count: int) -> list:
+        """The draws of ``count`` sweeps at once: exactly what ``count`` calls of :meth:`sweep`
+        with these ``active`` rows return, as a list.
+
+        Every block with an ``active`` row draws ``count`` sweeps' uniforms from its own stream
+        in one call, in the order the single sweeps would, and the ranks, gaps and candidates
+        of all of them are formed together. If a row's run of gaps stops short of the last
+        site (rare: the width covers 5 standard deviations), its continuation would come from
+        the stream in between two sweeps; then the streams are rewound and the sweeps drawn one
+        by one. (Rows that die out within the batch keep their draws; the caller finds no cell
+        there, as it would find none in later sweeps.)
+        """
+        streams, C, w, S = self.streams, self.classes, self.width, self.sites
+        block, wide = streams.block, C + 2 * w
+        blocks = np.flatnonzero(active.reshape(-1, block).any(axis=1))
+        saved = [streams.generators[b].bit_generator.state for b in blocks.tolist()]
+        rows = streams.rows(blocks)
+        part = np.empty((rows.size, count, wide))
+        for i, b in enumerate(blocks.tolist()):
+            part[i * block:(i + 1) * block] = streams.generators[b].random((count, block, wide)).transpose(1, 0, 2)
+        gap = np.log1p(-part[:, :, C:C + w])
+        gap *= self.scale
+        np.minimum(gap, S, out=gap)
+        position = gap.astype(np.int64)
+        np.cumsum(position, axis=2, out=position)
+        position += self.steps
+        if (position[:, :, -1] < S - 1).any():
+            for b, state in zip(blocks.tolist(), saved):
+                streams.generators[b].bit_generator.state = state
+            return [tuple(x.copy() for x in self.sweep(active)) for _ in range(count)]
+        ranks = np.zeros((self.rank.shape[0], count, C), dtype=np.int64)
+        ranks[rows] = np.argsort(np.argsort(part[:, :, :C], axis=2), axis=2)
+        at = np.flatnonzero(position < S)
+        ss = position.reshape(-1).take(at)
+        rk = at // w  # (row, sweep) pair, row-major
+        u = part.reshape(-1).take(at + rk * (C + w) + (C + w))
+        u *= self.top
+        kk = rk % count
+        rr = rows[rk // count]
+        order = np.argsort(kk, kind="stable")
+        rr, ss, u = rr.take(order), ss.take(order), u.take(order)
+        bounds = [0] + np.cumsum(np.bincount(kk, minlength=count)).tolist()
+        return [(ranks[:, k], rr[bounds[k]:bounds[k + 1]], ss[bounds[k]:bounds[k + 1]], u[bounds[k]:bounds[k + 1]])
+                for k in range(count)]
+
     def _extend(self, row: int, last: float):
         """Candidates of ``row`` beyond site ``last``: more gaps from the row's own stream."""
         generator = self.streams.generators[row // self.streams.block]
@@ -125,7 +182,7 @@ class _SweepDraws:
 
 
 def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Streams, *,
-               times: np.ndarray, snap: np.ndarray, dt_max: float, upper=None):
+               times: np.ndarray, snap: np.ndarray, dt_max: float, upper=None, by_class: bool = False):
     """Simulate every replicate, recording phenotype counts at ``times``.
 
     Parameters
@@ -139,7 +196,12 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
     dt_max : float
         Longest sweep; each interval between output times is cut into equal sweeps no longer.
     upper : int, optional
-        A replicate stops (frozen) once it holds this many cells.
+        A replicate stops (frozen) once it holds this many cells (checked after every class,
+        so the classes are taken one after another).
+    by_class : bool
+        Take the classes one after another even on a small problem (the same outcome as
+        resolving all classes of a sweep at once with :func:`_resolve_sweep`, which is the
+        default up to :data:`_AT_ONCE_SITES` sites without ``upper``).
 
     Returns
     -------
@@ -185,6 +247,10 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         if snap[k]:
             snapshots.append(current.copy())
 
+    # Per-site marks of the at-once resolution (:func:`_resolve_sweep`): when the site is vacated
+    # and when it is filled, as a class turn; C means never. Reset after every sweep.
+    at_once = upper is None and not by_class and R * S <= _AT_ONCE_SITES
+    marks = np.full((2, R * W), C, dtype=np.int64) if at_once else None
     now = 0.0
     for k, t_out in enumerate(times):
         span = t_out - now
@@ -193,19 +259,26 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         chance = np.concatenate([[0.0], -np.expm1(-total * dt)])  # indexed by code
         top_chance = float(chance.max())
         draws = _SweepDraws(streams, R, C, S, top_chance) if sweeps and top_chance > 0 else None
-        for _ in range(sweeps):
+        pending = []
+        for done in range(sweeps):
             if upper is not None and (frozen | (cells == 0)).all():
                 break
-            live = ~frozen
-            turns += int(cells[live].sum())
+            live = None if upper is None else ~frozen
+            turns += int(cells.sum() if live is None else cells[live].sum())
             if draws is None:
                 continue
             # Candidates: the turns whose uniform falls below the largest chance (few); then
             # each is held against its own cell's chance.
-            rank, rr, ss, u_now = draws.sweep(live & (cells > 0))
+            if R > 1 or marks is None:  # one lattice: several sweeps' draws at once
+                rank, rr, ss, u_now = draws.sweep(cells > 0 if live is None else live & (cells > 0))
+            else:
+                if not pending:  # the next few sweeps' draws at once (see _SweepDraws.batch)
+                    count = max(1, min(_BATCH, sweeps - done, _BATCH_NUMBERS // (R * (C + 2 * draws.width))))
+                    pending = draws.batch(cells > 0, count)[::-1]
+                rank, rr, ss, u_now = pending.pop()
             codes_now = flat[rr * W + ss] if R > 1 else flat[ss]
             chosen = u_now < chance[codes_now]
-            if not live.all():
+            if live is not None and not live.all():
                 chosen &= live[rr]
             acting = np.flatnonzero(chosen)
             if acting.size == 0:
@@ -214,6 +287,13 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
             xs = codes_now.take(acting).astype(np.int64) - 1
             event, inside = event_index(xs, u_now / chance[xs + 1], share, lower)
             event = _ORDER[np.minimum(event, last_event[xs])]
+            if at_once:
+                # No replicate can freeze inside the sweep: resolve every class at once.
+                turn = rank[0].take(label.take(ss)) if R == 1 else rank[rr, label[ss]]
+                _resolve_sweep(flat, cells, rr, ss, xs, event, inside, turn, C, W, N, S,
+                               neighbour_flat=neighbour_flat, across=across, closed=closed,
+                               rules=rules if deciding else None, by_count=by_count, marks=marks)
+                continue
             # Sort the acting cells by (turn of their class, event): each piece is a slice.
             key = (rank[rr, label[ss]] * 4 + event).astype(np.int16 if 4 * C < 2**15 else np.int64)
             sequence = np.argsort(key, kind="stable")
@@ -268,3 +348,96 @@ def run_sweeps(rules: Rules, lattice: Lattice, codes: np.ndarray, streams: Strea
         now = t_out
         record(k)
     return recorded, snapshots, turns, cells
+
+
+def _resolve_sweep(flat, cells, rr, ss, xs, event, inside, turn, C, W, N, S, *, neighbour_flat, across,
+                   closed, rules, by_count, marks):
+    """Apply one sweep's acting cells, every class at once, with the outcome of taking the
+    classes one after another in the order ``turn``.
+
+    Only three things couple cells of different classes, and each is a function of earlier
+    turns alone: a divider or mover succeeds if its target is free at its turn (the target was
+    empty at the start or was vacated earlier, by a death or a successful move, and no earlier
+    spreader claimed it since; within one class no two cells share a site or a neighbour); a
+    decider counts its occupied neighbours at its turn; and it reads the number of cells after
+    its own class's births and deaths (as the class-by-class loop does). Successes are found by
+    fixed-point iteration: after ``k`` rounds every spreader of the first ``k`` turns is right
+    (its success depends only on movers of earlier turns), so at most ``C`` rounds, usually two
+    or three, reach the unique fixed point. Then the grid is written once.
+
+    ``flat`` (the grid, ``replicates * W``) and ``cells`` are updated in place; ``marks`` is a
+    ``(2, replicates * W)`` scratch of vacate / fill turns, ``C`` everywhere on entry and exit.
+    """
+    # Sort the acting cells by event once: dividers, movers, deaths, decisions are slices.
+    order = np.argsort(event, kind="stable")
+    rr, ss, xs, inside, turn = rr.take(order), ss.take(order), xs.take(order), inside.take(order), turn.take(order)
+    bounds = np.cumsum(np.bincount(event, minlength=4)).tolist()
+    divide_end, move_end, death_end = bounds[0], bounds[1], bounds[2]
+    home = rr * W + ss if cells.size > 1 else ss
+    vacated, filled = marks
+    sp = slice(0, move_end)
+    sp_home, sp_turn = home[sp], turn[sp]
+    pick = np.minimum((inside[sp] * N).astype(np.int64), N - 1)
+    pick += ss[sp] * N
+    target_site = neighbour_flat.take(pick)
+    target = rr[sp] * W + target_site if cells.size > 1 else target_site
+    free_at_start = flat.take(target) == 0
+    if closed:  # beyond a closed edge (column S, always 0) is never free
+        possible = target_site != S
+        free_at_start &= possible
+    else:
+        possible = True
+    die_home, die_turn = home[move_end:death_end], turn[move_end:death_end]
+    vacated[die_home] = die_turn
+    mover_home, mover_turn = home[divide_end:move_end], turn[divide_end:move_end]
+    # Does any spreader aim at a mover's home? If not, movers' successes matter to no one and
+    # one round is exact; otherwise iterate to the fixed point.
+    filled[mover_home] = -1
+    rounds = C + 1 if mover_home.size and (filled.take(target) < 0).any() else 1
+    filled[mover_home] = C
+    ok = np.zeros(move_end, dtype=bool)
+    for _ in range(rounds):
+        if rounds > 1:
+            vacated[mover_home] = np.where(ok[divide_end:], mover_turn, C)
+        # Free at its turn: empty at the start, or vacated by an earlier turn.
+        free = free_at_start | (possible & (vacated.take(target) < sp_turn))
+        claim = target[free]
+        np.minimum.at(filled, claim, sp_turn[free])
+        new = free & (filled.take(target) == sp_turn)
+        filled[claim] = C
+        if rounds == 1 or np.array_equal(new, ok):
+            ok = new
+            break
+        ok = new
+    else:  # pragma: no cover - the iteration is exact after C rounds (see above)
+        raise RuntimeError("sweep resolution did not settle")
+    moved = ok[divide_end:]
+    vacated[mover_home] = np.where(moved, mover_turn, C)
+    target_ok = target[ok]
+    filled[target_ok] = sp_turn[ok]
+    # Cells after each class: births minus deaths, by replicate and turn, cumulated over turns.
+    R = cells.size
+    born = ok[:divide_end]
+    change = (np.bincount(rr[:divide_end][born] * C + turn[:divide_end][born], minlength=R * C)
+              - np.bincount(rr[move_end:death_end] * C + die_turn, minlength=R * C)).reshape(R, C)
+    new_codes = None
+    if death_end < turn.size and rules is not None:
+        dec = slice(death_end, None)
+        dr, dturn = rr[dec], turn[dec]
+        after = cells.take(dr) + np.cumsum(change, axis=1)[dr, dturn]
+        around_sites = across.take(ss[dec], axis=1)  # (directions, deciders)
+        if R > 1:
+            around_sites += dr * W
+        occupied = ((flat.take(around_sites) != 0) & (vacated.take(around_sites) > dturn)) | (
+            filled.take(around_sites) < dturn)
+        new_codes = rules.decide_columns(occupied.sum(axis=0), by_count, after, inside[dec]) + 1
+    cells += change.sum(axis=1)
+    # Write the grid: first every site vacated, then every site filled, then every decision.
+    flat[die_home] = 0
+    flat[mover_home[moved]] = 0
+    flat[target_ok] = (xs[sp][ok] + 1).astype(np.int8)
+    if new_codes is not None:
+        flat[home[death_end:]] = new_codes.astype(np.int8)
+    vacated[die_home] = C
+    vacated[mover_home] = C
+    filled[target_ok] = C

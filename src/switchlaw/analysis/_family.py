@@ -1,6 +1,6 @@
 """What a ready-made point function scans: a mean-field model and its named parameters.
 
-A study is a :class:`~switchlaw.MeanField`, or a function that builds one from keyword
+A model family is a :class:`~switchlaw.MeanField`, or a function that builds one from keyword
 parameters (``build(neighbours=6, move_cost=0.1) -> MeanField``). Its parameters are then
 ``beta`` and ``cost_per_bit`` (the law), the builder's keywords, and the scale factors
 ``death_scale`` and ``division_scale`` and the decision timescale ``tau`` applied to the
@@ -34,25 +34,25 @@ def fresh(model: MeanField, *, scales: Mapping | None = None) -> MeanField:
     )
 
 
-class Study:
+class ModelFamily:
     """A model or model builder, with the parameter values fixed for every point."""
 
-    def __init__(self, study, fixed=None):
-        if isinstance(study, MeanField):
-            self.model, self.builder, self.builder_names, self.open = fresh(study), None, (), False
-        elif callable(study):
+    def __init__(self, model, fixed=None):
+        if isinstance(model, MeanField):
+            self.model, self.builder, self.builder_names, self.open = fresh(model), None, (), False
+        elif callable(model):
             try:
-                signature = inspect.signature(study)
+                signature = inspect.signature(model)
             except (TypeError, ValueError):
-                raise InputError("`study` must be a MeanField or a function with keyword parameters") from None
+                raise InputError("`model` must be a MeanField or a function with keyword parameters") from None
             kinds = (inspect.Parameter.POSITIONAL_OR_KEYWORD, inspect.Parameter.KEYWORD_ONLY)
-            self.model, self.builder = None, study
+            self.model, self.builder = None, model
             self.builder_names = tuple(n for n, p in signature.parameters.items() if p.kind in kinds)
             self.open = any(p.kind == inspect.Parameter.VAR_KEYWORD for p in signature.parameters.values())
         else:
             raise InputError(
-                "`study` must be a MeanField or a function building one from keyword parameters "
-                f"(got {type(study).__name__})"
+                "`model` must be a MeanField or a function building one from keyword parameters "
+                f"(got {type(model).__name__})"
             )
         if fixed is not None and not isinstance(fixed, Mapping):
             raise InputError(f"`fixed` must map parameter names to values (got {type(fixed).__name__})")
@@ -61,7 +61,7 @@ class Study:
 
     @property
     def names(self) -> tuple:
-        """Every parameter the study has."""
+        """Every parameter the model family has."""
         seen = LAW_PARAMETERS + self.builder_names + MODEL_PARAMETERS
         return tuple(dict.fromkeys(seen))
 
@@ -71,12 +71,12 @@ class Study:
         unknown = [n for n in names if n not in self.names]
         if unknown:
             raise InputError(
-                f"{where} names {', '.join(map(repr, unknown))}, which the study does not have "
+                f"{where} names {', '.join(map(repr, unknown))}, which the model family does not have "
                 f"(its parameters: {', '.join(self.names)})"
             )
 
     def check(self, grid_names, *, law: bool = True, exclude=()) -> None:
-        """Grid names must be parameters of the study, not also fixed, and give the law once."""
+        """Grid names must be parameters of the model family, not also fixed, and give the law once."""
         self._check_known(grid_names, "`grid`")
         both = [n for n in grid_names if n in self.fixed]
         if both:
@@ -107,7 +107,7 @@ class Study:
                 keywords = {k: values[k] for k in self.builder_names if k in values}
             base = self.builder(**keywords)
             if not isinstance(base, MeanField):
-                raise InputError(f"`study` must return a MeanField (got {type(base).__name__})")
+                raise InputError(f"`model` must return a MeanField (got {type(base).__name__})")
         return fresh(base, scales={k: values[k] for k in MODEL_PARAMETERS if k in values})
 
     @staticmethod
