@@ -559,3 +559,17 @@ def test_a_failed_rename_leaves_nothing_behind(law, tmp_path, monkeypatch):
     with pytest.raises(OSError, match="simulated"):
         export(law, tmp_path / "law.csv")
     assert files_in(tmp_path) == []
+
+
+@pytest.mark.parametrize("suffix", [".py", ".h", ".tex"])
+def test_code_formats_without_sympy_say_which_extra_to_install(fits, suffix, monkeypatch, tmp_path):
+    # sympy is in the optional [code] extra: without it a code export is a one-line InputError
+    # naming the format and the extra, and nothing is written (common practice, no source).
+    import importlib.util
+
+    real_find_spec = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a, **k: None if name == "sympy" else real_find_spec(name, *a, **k))
+    with pytest.raises(sl.InputError, match=r"needs the optional package sympy.*switchlaw\[code\]"):
+        export(fits["global logistic"], tmp_path / f"fit{suffix}")
+    assert not list(tmp_path.iterdir())

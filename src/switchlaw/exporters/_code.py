@@ -90,10 +90,22 @@ def header(fit, digest: str, law) -> list:
     return lines
 
 
+def require_sympy(format_name: str) -> None:
+    """Refuse a code format in one line when the optional ``[code]`` extra is not installed."""
+    import importlib.util
+
+    if importlib.util.find_spec("sympy") is None:
+        raise InputError(
+            f"format {format_name!r} needs the optional package sympy "
+            "(install it with: pip install 'switchlaw[code]')"
+        )
+
+
 def code_format(name: str, suffixes: tuple, source, description: str) -> Format:
     """Register a code format whose ``source(fit, digest, law)`` gives the file's text."""
 
     def write(obj, path, *, phenotype, kind, per_density) -> tuple:
+        require_sympy(name)
         fit, digest, law = resolve(obj, phenotype=phenotype, kind=kind, per_density=per_density)
         return {path: source(fit, digest, law).encode()}, digest
 
