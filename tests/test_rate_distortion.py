@@ -35,7 +35,7 @@ def test_bernoulli_hamming(p, beta, method):
 
 
 def test_bernoulli_first_critical_beta():
-    # beta_c = ln((1-p)/p) (Kuhn–Tucker conditions, Blahut 1972; domain notes §2).
+    # beta_c = ln((1-p)/p) (Kuhn–Tucker conditions, Blahut 1972).
     for p in (0.05, 0.2, 0.4):
         assert sl.first_critical_beta(HAMMING2, [1 - p, p]) == pytest.approx(
             math.log((1 - p) / p), rel=1e-13
@@ -86,7 +86,7 @@ def test_gaussian_first_critical_beta():
 
 
 def test_slope_of_the_curve_is_the_multiplier():
-    # dR/dD = -beta (Cover & Thomas §10.4; domain notes §2): dI_nats / dE[u] = beta.
+    # dR/dD = -beta (Cover & Thomas §10.4): dI_nats / dE[u] = beta.
     payoff = -np.abs(np.subtract.outer(np.arange(6), np.arange(4)) * 0.5)
     env = np.array([0.05, 0.1, 0.3, 0.25, 0.2, 0.1])
     h = 1e-5

@@ -42,7 +42,7 @@ def test_information_stays_finite_when_a_marginal_underflows():
 
 
 def test_a_constant_added_to_every_payoff_changes_nothing():
-    # Only payoff differences within a state matter (domain notes §2).
+    # Only payoff differences within a state matter (the Gibbs form q ∝ r exp(beta u), Blahut 1972).
     rng = np.random.default_rng(5)
     u = rng.normal(size=(6, 3))
     p = rng.dirichlet(np.ones(6))

@@ -289,8 +289,8 @@ def test_progress_bar_estimates_time_left_and_quiet_mode_prints_nothing(capsys):
 # ---------------------------------------------------------------- point functions
 def test_law_summary_matches_the_logistic_law_over_neighbourhood_sizes():
     # Max-entropy with two phenotypes is the logistic law q = 1 / (1 + exp(-beta du(y)))
-    # (domain notes §2, objective 2); the fraction averages it over Binomial(N, rho)
-    # neighbour counts (domain notes §3), and E[u] and I(X;Y) follow from their definitions
+    # (maximum entropy, Jaynes 1957); the fraction averages it over Binomial(N, rho)
+    # neighbour counts (mean-field occupancy, common practice, no source), and E[u] and I(X;Y) follow from their definitions
     # (Cover & Thomas ch. 2), written out here with scipy.
     densities = np.array([0.1, 0.4, 0.8])
     grid = {"beta": np.array([0.5, 3.0]), "neighbours": np.array([4, 6, 8])}
@@ -318,7 +318,7 @@ def test_law_summary_matches_the_logistic_law_over_neighbourhood_sizes():
 def test_regime_and_critical_betas_match_the_transcritical_closed_form():
     # At zero density every neighbour site is empty, so q(divide | 0) = 1 / (1 + e^beta) and
     # the low-density growth is g(0) = q b - s d, zero at beta_T = ln(b / (s d) - 1) (derived
-    # from domain notes §2 and §4). Zero is stable above beta_T (strong Allee or extinction)
+    # from the Kuhn–Tucker conditions (Blahut 1972) and the fast-switching growth rate). Zero is stable above beta_T (strong Allee or extinction)
     # and unstable below (monostable or weak Allee) — the regime definitions of §4.
     model = go_or_grow(death=0.2)
     grid = {"beta": np.array([0.4, 1.0, 2.5, 6.0]), "death_scale": np.array([0.8, 1.0, 1.25])}
@@ -342,7 +342,7 @@ def test_regime_and_critical_betas_match_the_transcritical_closed_form():
 def test_extinction_risk_matches_first_step_analysis():
     # Birth–death chain: P(hit 0 before K | n0) = sum_{j=n0}^{K-1} rho_j / sum_{j=0}^{K-1} rho_j
     # with rho_j = prod_{i<=j} mu_i / lambda_i (Karlin & Taylor 1975, ch. 4). Rates from the
-    # domain notes §4: births b_x (1 - rho), deaths d_x, weighted by the law's fractions.
+    # Fast-switching mean field (common practice, no source): births b_x (1 - rho), deaths d_x, weighted by the law's fractions.
     model = go_or_grow(death=0.2)
     sites, initial, target, replicates = 40, 3, 12, 400
     point_function = sa.ExtinctionRisk(model, sites=sites, initial=initial, target=target)

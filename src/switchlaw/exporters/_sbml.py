@@ -5,7 +5,7 @@ With a finite decision timescale ``tau`` there is one species per phenotype and 
     rho_x' = b_x rho_x (1 - rho) - (d_x + c_x rho) rho_x + sum_{i != x} rho_i f_x / tau
              - sum_{j != x} rho_x f_j / tau,
 
-which equals ``a_x rho_x + (rho f_x - rho_x) / tau`` (domain notes §4) because the fractions
+which equals ``a_x rho_x + (rho f_x - rho_x) / tau`` (compartment model with re-decisions at rate 1/tau, common practice, no source) because the fractions
 ``f_x(rho)`` sum to one. Division, death and every switch ``i -> j`` are separate
 irreversible reactions with non-negative rates. In the fast-switching limit (``tau=None``)
 the one species is the total density and ``rho' = rho g(rho)`` is split into a birth and a

@@ -3,7 +3,7 @@
 Long-format CSV with one row per density x state x (from, to) phenotype pair, plus a JSON
 sidecar. With step ``dt`` and decision timescale ``tau`` a cell re-decides within a step with
 probability ``1 - exp(-dt / tau)`` and then takes ``j`` with probability ``q(j | y, rho)``
-(domain notes §3), so ``P[y, i, j] = (1 - exp(-dt/tau)) q(j | y)`` for ``i != j`` and
+(rates q(j|y)/tau, common practice, no source), so ``P[y, i, j] = (1 - exp(-dt/tau)) q(j | y)`` for ``i != j`` and
 ``P[y, i, i] = exp(-dt/tau) + (1 - exp(-dt/tau)) q(i | y)``: the closed form of
 ``expm(K dt)`` for the rank-one generator ``K``, a sum of non-negative terms at any
 ``dt / tau`` (see :meth:`SwitchingLaw.step_probabilities`).
