@@ -71,6 +71,11 @@ _EXPORTS = {
     "RegimeMap": ".population",
     "REGIMES": ".population",
     "Trajectory": ".population",
+    # spatial
+    "FrontRun": ".spatial",
+    "simulate_front": ".spatial",
+    "spreading_speed": ".spatial",
+    "SpreadingSpeed": ".spatial",
     # growth
     "bet_hedging": ".growth",
     "BetHedging": ".growth",

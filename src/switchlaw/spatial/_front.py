@@ -46,12 +46,13 @@ def simulate_front(
     edge_level: float = 0.01,
     window: float = 0.5,
     frames: int = 201,
+    occupied=None,
     rtol: float = 1e-6,
 ) -> FrontRun:
     """Invasion of empty space by a population whose cells switch phenotype by a derived law.
 
     The domain ``[0, length]`` (a line, or the radius of a disc or ball) starts at the bulk
-    state (the largest stable equilibrium) for ``x < length / 20`` and empty beyond; the
+    state (the largest stable equilibrium) for ``x < occupied`` and empty beyond; the
     method of lines with a stiff integrator (BDF with the exact sparse Jacobian) carries it to
     ``t_end``.
 
@@ -78,6 +79,8 @@ def simulate_front(
         Fraction of the run (its end) over which the speed is fitted.
     frames : int
         Saved times.
+    occupied : float, optional
+        Extent of the initially occupied region (length units; default ``length / 20``).
     rtol : float
         Relative tolerance of the integrator (absolute tolerance ``rtol / 1000``).
 
@@ -121,7 +124,9 @@ def simulate_front(
     j0 = zero_jacobian(model, f0)
     d_lin = np.array([f0 @ D]) if model.tau is None else D
     c_star, l_star = linear.speed, linear.decay_rate
-    start = max(length / 20.0, 5 * dx)
+    start = max(length / 20.0, 5 * dx) if occupied is None else as_positive(occupied, "occupied")
+    if start >= length:
+        raise InputError(f"`occupied` must be shorter than `length` ({length:g}) (got {start:g})")
 
     if np.isfinite(c_star):
         c_grid = linear_speed(j0, d_lin, dx=dx)[0]
@@ -141,13 +146,25 @@ def simulate_front(
     else:
         c_grid = float("nan")
     rate = abs(linear.low_density_growth)
-    if rate > 0 and t_end < 10.0 / rate:
+    if linear.low_density_growth > 0 and t_end < 10.0 / rate:
         raise InputError(
             f"`t_end` = {t_end:g} is too short to fit a speed: a front forms over several growth "
             f"times 1/|s0| = {1 / rate:.3g}; use t_end >= {10.0 / rate:.3g}"
         )
 
     bulk = _bulk(model, beta, table)
+    system = mean_field_system(model, table, D)
+    if model.tau is None:
+        # Transport Lap(w(rho)) with w = D(rho) rho is diffusion only while w rises with rho.
+        top = bulk[0] if bulk is not None else 1.0
+        rho = np.linspace(0.0, top, 513)
+        slope = system.potential_slope(rho)
+        if (slope <= 0).any():
+            where = float(rho[np.argmax(slope <= 0)])
+            raise InputError(
+                f"fast switching makes D(rho) rho fall with density at rho = {where:.3g} (backward "
+                "diffusion: the front equation is ill-posed); give the model a finite `tau`"
+            )
     grid = Grid(length, dx, dimension)
     x = grid.centres
     if bulk is None:
@@ -158,7 +175,6 @@ def simulate_front(
         bulk_density, seed_state = bulk
     initial = np.where((x < start)[:, None], seed_state[None, :], 0.0)
     times = np.linspace(0.0, t_end, int(frames))
-    system = mean_field_system(model, table, D)
     solution = integrate(system, grid, initial, times, rtol=rtol, atol=rtol * 1e-3)
     if model.tau is None:
         rho = np.clip(solution.fields[:, :, 0], 0.0, None)
@@ -174,7 +190,8 @@ def simulate_front(
     felt = np.flatnonzero(total[:, -1] > BOUNDARY_LEVEL * reference)
     boundary_time = float(times[felt[0]]) if felt.size else float("nan")
     usable = times < boundary_time if felt.size else np.ones(times.size, bool)
-    last = int(np.flatnonzero(usable)[-1])
+    alive = usable & np.isfinite(positions)
+    last = int(np.flatnonzero(alive)[-1]) if alive.any() else int(np.flatnonzero(usable)[-1])
     t_from = (1.0 - window) * times[last]
     late = usable & (times >= t_from) & (times > 0)
     k = log_correction(l_star, dimension)
@@ -186,9 +203,10 @@ def simulate_front(
     if not solution.success:
         status = "failed"
         messages.append(f"integrator failed: {solution.message}")
-    elif bulk is None or not np.isfinite(positions[last]):
+    elif bulk is None or not np.isfinite(positions[last]) or last < times.size - 1 and not felt.size:
         kind = "retreating"
-        messages.append("the population dies out" if bulk is None else "the front lost the bulk density")
+        messages.append("no stable bulk state: the population dies out" if bulk is None
+                        else f"the population died out by t = {times[last + 1] if last + 1 < times.size else times[last]:.4g}")
         finite = late & np.isfinite(positions)
         if finite.sum() >= 5:
             speed = plain = float(np.polyfit(times[finite], positions[finite], 1)[0])
@@ -208,10 +226,12 @@ def simulate_front(
                 kind, speed = "pushed", plain
             else:
                 kind, speed = "pulled", corrected
-                if corrected < c_grid * (1.0 - SPEED_TOLERANCE):
+                if abs(corrected - c_grid) > SPEED_TOLERANCE * c_grid:
+                    status = "unsettled"
                     messages.append(
-                        f"front slower than the linear speed ({corrected:.4g} < {c_grid:.4g}): "
-                        "linear determinacy fails here")
+                        f"the pulled front has not settled: fitted speed {corrected:.4g} differs from the "
+                        f"grid's linear speed {c_grid:.4g} by {100 * abs(corrected / c_grid - 1):.1f}%; "
+                        "raise t_end (the transient decays like 1/t)")
         profile, n = profiles[last], total[last]
         outer = crossing(x, n, 0.1 * bulk_density)
         width = outer - positions[last]

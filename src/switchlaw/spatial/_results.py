@@ -98,6 +98,8 @@ class FrontRun:
     status : str
         ``"ok"``, ``"boundary"`` (the far boundary was reached; speed from earlier times),
         ``"coarse"`` (the front core spans too few cells), ``"short"`` (too few positions to fit),
+        ``"unsettled"`` (a pulled front whose fitted speed is still more than 2% from the grid's
+        ``c*``: its transient has not decayed),
         ``"failed"`` (the integrator failed).
     message : str
     ok : bool
