@@ -243,7 +243,7 @@ def simulate_front(
             messages.append(
                 f"the front core (0.1 to 0.5 of the bulk) spans {width / dx:.1f} cells; use dx <= {width / 6:.3g}")
     if felt.size:
-        if status == "ok":
+        if status != "failed":
             status = "boundary"
         messages.append(f"the front reached the far boundary at t = {boundary_time:.4g}; "
                         f"speed fitted before that (use a longer `length`)")
