@@ -222,7 +222,6 @@ def test_front_to_xarray():
     (dict(diffusion=[1.0]), r"`diffusion` must have one coefficient per phenotype \(2"),
     (dict(dx=2.0), r"`dx` = 2 is too coarse for the front: .*use dx <= "),
     (dict(length=40.0), r"`length` = 40 is too short for the run: .*use length >= "),
-    (dict(t_end=1.0), r"`t_end` = 1 is too short to fit a speed: .*use t_end >= "),
     (dict(dimension=4), r"`dimension` must be one of \(1, 2, 3\)"),
     (dict(dx=float("nan")), r"`dx`"),
 ])
@@ -236,6 +235,12 @@ def test_ill_posed_fast_switching_transport_is_refused():
     # D(rho) rho falling with density is backward diffusion (ill-posed); a finite tau is fine.
     with pytest.raises(sl.InputError, match=r"backward diffusion.*finite `tau`"):
         sl.simulate_front(go_or_grow(death=0.2), 3.0, diffusion=[0.2, 1.0], length=200, dx=0.25, t_end=150)
+
+
+def test_short_run_is_reported():
+    run = sl.simulate_front(twin(None), 2.0, diffusion=[1.0, 1.0], length=150.0, dx=0.25, t_end=5.0)
+    assert run.status == "short" and not run.ok
+    assert "`t_end` = 5 is too short to fit a speed" in run.message and "use t_end >= 12.5" in run.message
 
 
 def test_far_boundary_is_reported():

@@ -146,11 +146,7 @@ def simulate_front(
     else:
         c_grid = float("nan")
     rate = abs(linear.low_density_growth)
-    if linear.low_density_growth > 0 and t_end < 10.0 / rate:
-        raise InputError(
-            f"`t_end` = {t_end:g} is too short to fit a speed: a front forms over several growth "
-            f"times 1/|s0| = {1 / rate:.3g}; use t_end >= {10.0 / rate:.3g}"
-        )
+    too_short = linear.low_density_growth > 0 and t_end < 10.0 / rate
 
     bulk = _bulk(model, beta, table)
     system = mean_field_system(model, table, D)
@@ -242,6 +238,11 @@ def simulate_front(
             status = "coarse"
             messages.append(
                 f"the front core (0.1 to 0.5 of the bulk) spans {width / dx:.1f} cells; use dx <= {width / 6:.3g}")
+    if too_short and status != "failed":
+        status = "short"
+        messages.append(
+            f"`t_end` = {t_end:g} is too short to fit a speed: a front forms over several growth "
+            f"times 1/s0 = {1 / rate:.3g}; use t_end >= {10.0 / rate:.3g}")
     if felt.size:
         if status != "failed":
             status = "boundary"
