@@ -249,3 +249,30 @@ def test_far_boundary_is_reported():
                             t_end=200, occupied=20)
     assert run.status == "boundary" and not run.ok
     assert "far boundary" in run.message and run.boundary_time < 200
+
+
+# ------------------------------------------------------------------ independent PDE package
+@pytest.mark.slow
+def test_front_agrees_with_py_pde():
+    # py-pde (a general-purpose PDE package) on the same equation and grid: the go-or-grow
+    # model with the max-entropy law written out in closed form (Binomial(6, rho) occupancy,
+    # q(divide | y) = 1 / (1 + exp(-beta (y/3 - 1)))), its adaptive Runge-Kutta 5(4) solver.
+    import pde  # in the `test` extra
+    beta, tau, death, length, dx, t_end = 1.5, 0.5, 0.1, 100.0, 0.25, 40.0
+    model = sl.MeanField(GROW_WHEN_CROWDED, hexagonal, division=[1.0, 0.0], death=[death, death],
+                         tau=tau, objective="max-entropy")
+    run = sl.simulate_front(model, beta, diffusion=[0.0, 1.0], length=length, dx=dx, t_end=t_end, rtol=1e-8)
+    f = " + ".join(
+        f"{math.comb(6, y) / (1 + math.exp(-beta * (y / 3 - 1)))!r} * (g + m)**{y} * (1 - g - m)**{6 - y}"
+        for y in range(7))
+    equation = pde.PDE({
+        "g": f"(1 - g - m) * g - {death} * g + ((g + m) * ({f}) - g) / {tau}",
+        "m": f"laplace(m) - {death} * m + ((g + m) * (1 - ({f})) - m) / {tau}",
+    })
+    grid = pde.CartesianGrid([[0.0, length]], int(length / dx))
+    state = pde.FieldCollection([pde.ScalarField(grid, run.profiles[0, :, k]) for k in range(2)])
+    final = equation.solve(state, t_range=t_end, solver="runge-kutta", adaptive=True, tolerance=1e-8,
+                           tracker=None, backend="numpy")
+    total = final[0].data + final[1].data
+    np.testing.assert_allclose(run.density[-1], total, atol=1e-4)
+    assert crossing(run.x, total, 0.5 * run.bulk_density) == pytest.approx(run.positions[-1], abs=0.01)
