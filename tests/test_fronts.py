@@ -276,3 +276,16 @@ def test_front_agrees_with_py_pde():
     total = final[0].data + final[1].data
     np.testing.assert_allclose(run.density[-1], total, atol=1e-4)
     assert crossing(run.x, total, 0.5 * run.bulk_density) == pytest.approx(run.positions[-1], abs=0.01)
+
+
+# ------------------------------------------------------------------ scans
+def test_front_summary_in_a_beta_scan():
+    # Identical phenotypes: whatever the law, the total density obeys Fisher–KPP, so every
+    # point runs at 2 sqrt(r D) (Fisher 1937; KPP 1937).
+    function = sl.FrontSummary(twin(None), diffusion=[1.0, 1.0], length=100.0, dx=0.25, t_end=40.0)
+    data = sl.scan(function, {"beta": [0.5, 3.0]}, progress=False)
+    np.testing.assert_allclose(data["linear_speed"].values, 2 * math.sqrt(0.8), rtol=1e-8)
+    np.testing.assert_allclose(data["front_speed"].values, 2 * math.sqrt(0.8), rtol=1e-2)
+    assert list(data["front_kind"].values) == ["pulled", "pulled"]
+    assert data["edge_fraction"].dims == ("beta", "phenotype")
+    np.testing.assert_allclose(data["edge_fraction"].sum("phenotype").values, 1.0)

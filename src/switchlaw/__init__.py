@@ -118,6 +118,7 @@ _EXPORTS = {
     "equilibrium_sensitivity": ".analysis",
     "EquilibriumSensitivity": ".analysis",
     "ExtinctionRisk": ".analysis",
+    "FrontSummary": ".analysis",
     "latin_hypercube": ".analysis",
     "LawSummary": ".analysis",
     "load_scan": ".analysis",
