@@ -289,3 +289,24 @@ def test_front_summary_in_a_beta_scan():
     assert list(data["front_kind"].values) == ["pulled", "pulled"]
     assert data["edge_fraction"].dims == ("beta", "phenotype")
     np.testing.assert_allclose(data["edge_fraction"].sum("phenotype").values, 1.0)
+
+
+# ------------------------------------------------------------------ plots
+def test_front_plots_draw_the_run():
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    run = sl.simulate_front(twin(None), 2.0, diffusion=[1.0, 1.0], length=60, dx=0.25, t_end=20, frames=41)
+    axes = sl.plot_front_profiles(run, times=[0.0, 10.0, 20.0])
+    assert len(axes) == 2 and len(axes[0].get_lines()) == 3
+    np.testing.assert_allclose(axes[1].get_lines()[-1].get_ydata(), run.profiles[-1, :, 1])
+    ax = sl.plot_front_position(run)
+    np.testing.assert_allclose(ax.get_lines()[0].get_ydata(), run.positions)
+    dashed = ax.get_lines()[1]
+    slope = np.polyfit(dashed.get_xdata(), dashed.get_ydata(), 1)[0]
+    assert slope == pytest.approx(2 * math.sqrt(0.8))  # c* of Fisher–KPP
+    ax = sl.plot_front_speeds([run])
+    assert [line.get_label() for line in ax.get_lines()][:2] == ["linear speed c*", run.kind]
+    plt.close("all")

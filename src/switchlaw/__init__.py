@@ -137,6 +137,9 @@ _EXPORTS = {
     "read_table": ".exporters",
     # plotting
     "plot_bifurcation": ".plotting",
+    "plot_front_position": ".plotting",
+    "plot_front_profiles": ".plotting",
+    "plot_front_speeds": ".plotting",
     "plot_law": ".plotting",
     "plot_regime_map": ".plotting",
     "plot_tradeoff": ".plotting",
