@@ -310,3 +310,18 @@ def test_front_plots_draw_the_run():
     ax = sl.plot_front_speeds([run])
     assert [line.get_label() for line in ax.get_lines()][:2] == ["linear speed c*", run.kind]
     plt.close("all")
+
+
+def test_front_study_runs_and_scan():
+    # Identical phenotypes (Fisher–KPP whatever the law): every beta runs at 2 sqrt(r D).
+    study = sl.front_study(twin(None), diffusion={"divide": 1.0, "move": 1.0}, length=100.0, dx=0.25,
+                           t_end=40.0, betas=[1.0], scan={"start": 0.5, "stop": 3.0, "points": 3})
+    assert len(study.runs) == 1 and study.runs[0].kind == "pulled"
+    np.testing.assert_allclose(study.scan.speeds, 2 * math.sqrt(0.8), rtol=1e-2)
+    summary = study.summary()
+    assert summary["scan"]["kind"] == ["pulled"] * 3
+    assert set(summary["runs"][0]["edge_fractions"]) == {"divide", "move"}
+    assert study.scan.to_xarray()["front_speed"].dims == ("beta",)
+    with pytest.raises(sl.InputError, match=r"`front.scan` must have keys start, stop, points"):
+        sl.front_study(twin(None), diffusion=[1.0, 1.0], length=100.0, dx=0.25, t_end=40.0,
+                       betas=[1.0], scan={"start": 0.5, "stop": 3.0})

@@ -72,7 +72,10 @@ _EXPORTS = {
     "REGIMES": ".population",
     "Trajectory": ".population",
     # spatial
+    "front_study": ".spatial",
     "FrontRun": ".spatial",
+    "FrontScan": ".spatial",
+    "FrontStudy": ".spatial",
     "simulate_front": ".spatial",
     "spreading_speed": ".spatial",
     "SpreadingSpeed": ".spatial",

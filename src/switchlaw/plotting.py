@@ -258,8 +258,9 @@ def plot_front_speeds(scan, *, ax=None):
 
     Parameters
     ----------
-    scan : xarray.Dataset or sequence of FrontRun
-        A one-dimensional beta scan of :class:`~switchlaw.FrontSummary`, or front runs.
+    scan : FrontScan, xarray.Dataset or sequence of FrontRun
+        A speed scan of :func:`~switchlaw.front_study`, a one-dimensional beta scan of
+        :class:`~switchlaw.FrontSummary`, or front runs.
     ax : matplotlib Axes, optional
 
     Returns
@@ -270,7 +271,9 @@ def plot_front_speeds(scan, *, ax=None):
 
     if ax is None:
         _, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
-    if hasattr(scan, "data_vars"):
+    if hasattr(scan, "linear_speeds"):  # FrontScan
+        betas, speeds, linear, kinds = scan.betas, scan.speeds, scan.linear_speeds, list(scan.kinds)
+    elif hasattr(scan, "data_vars"):
         betas = np.asarray(scan["beta"].values, float)
         speeds = np.asarray(scan["front_speed"].values, float)
         linear = np.asarray(scan["linear_speed"].values, float)
