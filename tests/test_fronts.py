@@ -325,3 +325,15 @@ def test_front_study_runs_and_scan():
     with pytest.raises(sl.InputError, match=r"`front.scan` must have keys start, stop, points"):
         sl.front_study(twin(None), diffusion=[1.0, 1.0], length=100.0, dx=0.25, t_end=40.0,
                        betas=[1.0], scan={"start": 0.5, "stop": 3.0})
+
+
+def test_leading_edge_composition_is_the_linear_eigenvector():
+    # Ahead of a pulled front the population is the principal eigenmode of the linearisation at
+    # lambda* (Weinberger, Lewis & Li 2002; van Saarloos 2003): the measured edge composition
+    # matches the eigenvector of spreading_speed.
+    model = go_or_grow(death=0.1, tau=0.5)
+    linear = sl.spreading_speed(model, 1.5, diffusion=[0.0, 1.0])
+    run = sl.simulate_front(model, 1.5, diffusion=[0.0, 1.0], length=120.0, dx=0.2, t_end=100.0)
+    assert run.kind == "pulled" and run.ok, run.message
+    np.testing.assert_allclose(run.edge_fractions, linear.edge_fractions, atol=5e-3)
+    assert run.speed == pytest.approx(linear.speed, rel=1.5e-2)

@@ -43,7 +43,7 @@ def simulate_front(
     seed=None,
     dimension: int = 1,
     level: float = 0.5,
-    edge_level: float = 0.01,
+    edge_level: float = 1e-3,
     window: float = 0.5,
     frames: int = 201,
     occupied=None,
