@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from .._errors import InputError
-from .._validate import as_nonnegative, as_positive, choice
+from .._validate import as_nonnegative, as_positive
 from ._core import DIMENSIONS, Grid, integrate
 from ._linear import linear_speed, spreading_speed, zero_jacobian
 from ._measure import composition, crossing, fit_speed, log_correction
