@@ -337,3 +337,37 @@ def test_leading_edge_composition_is_the_linear_eigenvector():
     assert run.kind == "pulled" and run.ok, run.message
     np.testing.assert_allclose(run.edge_fractions, linear.edge_fractions, atol=5e-3)
     assert run.speed == pytest.approx(linear.speed, rel=1.5e-2)
+
+
+# ------------------------------------------------------------------ lattice fronts
+def test_lattice_front_is_slower_than_its_continuum_bound():
+    # One phenotype dividing into free neighbour sites (rate b) and hopping (rate m), no death:
+    # the population invades (Fisher–KPP growth), and a front of discrete cells runs below the
+    # continuum pulled speed 2 sqrt(b D) with D = (m + b) / 4 counting both the hops and the
+    # daughters' displacement (Brunet & Derrida 1997: a cutoff slows pulled fronts).
+    b, m = 1.0, 8.0
+    agents = sl.LatticeModel(sl.Lattice((8, 120), "von-neumann", "closed"), division=[b], death=[0.0],
+                             motility=[m])
+    front = sl.lattice_front(agents, t_end=12.0, seed=3, strip=6, replicates=2, frames=25)
+    assert front.status == "ok", front.message
+    assert 0.0 < front.speed < 2 * math.sqrt(b * (m + b) / 4)
+    again = sl.lattice_front(agents, t_end=12.0, seed=3, strip=6, replicates=2, frames=25)
+    np.testing.assert_array_equal(front.positions, again.positions)  # the seed fixes the run
+
+
+def test_lattice_front_continuum_value_beside_it():
+    law = sl.derive_law(GROW_WHEN_CROWDED, lambda rho: sl.occupancy(4, rho),
+                        densities=np.linspace(0, 1, 101), beta=1.0, objective="max-entropy")
+    agents = sl.LatticeModel(sl.Lattice((6, 100), "von-neumann", "closed"), division=[1.0, 0.0],
+                             death=[0.1, 0.1], motility=[0.0, 4.0], law=law, tau=0.5)
+    field = sl.MeanField(GROW_WHEN_CROWDED, lambda rho: sl.occupancy(4, rho), division=[1.0, 0.0],
+                         death=[0.1, 0.1], tau=0.5, objective="max-entropy")
+    front = sl.lattice_front(agents, t_end=30.0, seed=1, mean_field=field, beta=1.0, frames=21)
+    # Motility 4 on a von Neumann lattice is diffusion 1 (mean square jump 1, over 2 x 2 dimensions).
+    np.testing.assert_allclose(front.diffusion, [0.0, 1.0])
+    assert front.continuum_linear_speed == pytest.approx(
+        sl.spreading_speed(field, 1.0, diffusion=[0.0, 1.0]).speed)
+    assert np.isfinite(front.speed) and np.isfinite(front.continuum_speed)
+    with pytest.raises(sl.InputError, match=r"boundary='closed'"):
+        sl.lattice_front(sl.LatticeModel(sl.Lattice((6, 100)), division=[1.0], death=[0.0], motility=[1.0]),
+                         t_end=1.0, seed=0)

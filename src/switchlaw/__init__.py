@@ -106,6 +106,8 @@ _EXPORTS = {
     "hitting_probability": ".stochastic",
     "HittingEstimate": ".stochastic",
     "Lattice": ".stochastic",
+    "lattice_front": ".stochastic",
+    "LatticeFront": ".stochastic",
     "LatticeModel": ".stochastic",
     "LatticeRun": ".stochastic",
     "MeanFieldComparison": ".stochastic",
