@@ -346,12 +346,12 @@ def test_lattice_front_is_slower_than_its_continuum_bound():
     # continuum pulled speed 2 sqrt(b D) with D = (m + b) / 4 counting both the hops and the
     # daughters' displacement (Brunet & Derrida 1997: a cutoff slows pulled fronts).
     b, m = 1.0, 8.0
-    agents = sl.LatticeModel(sl.Lattice((8, 120), "von-neumann", "closed"), division=[b], death=[0.0],
+    agents = sl.LatticeModel(sl.Lattice((16, 120), "von-neumann", "closed"), division=[b], death=[0.0],
                              motility=[m])
-    front = sl.lattice_front(agents, t_end=12.0, seed=3, strip=6, replicates=2, frames=25)
+    front = sl.lattice_front(agents, t_end=12.0, seed=3, strip=6, replicates=4, frames=25)
     assert front.status == "ok", front.message
     assert 0.0 < front.speed < 2 * math.sqrt(b * (m + b) / 4)
-    again = sl.lattice_front(agents, t_end=12.0, seed=3, strip=6, replicates=2, frames=25)
+    again = sl.lattice_front(agents, t_end=12.0, seed=3, strip=6, replicates=4, frames=25)
     np.testing.assert_array_equal(front.positions, again.positions)  # the seed fixes the run
 
 

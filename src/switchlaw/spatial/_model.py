@@ -84,10 +84,12 @@ class LawTable:
         spline = PchipInterpolator(self.densities, self.fractions, axis=0, extrapolate=False)
         object.__setattr__(self, "_spline", (spline, spline.derivative()))
 
-    def __call__(self, rho: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Fractions and their slopes at densities ``rho`` (clipped to [0, 1])."""
+    def __call__(self, rho: np.ndarray, slopes: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
+        """Fractions and (unless ``slopes=False``) their slopes at densities ``rho`` (clipped to [0, 1])."""
         spline = self._spline
         inside = np.clip(rho, 0.0, 1.0)
+        if not slopes:
+            return spline[0](inside), None
         slope = spline[1](inside)
         slope[(rho <= 0.0) | (rho >= 1.0)] = 0.0
         return spline[0](inside), slope
@@ -104,7 +106,7 @@ def mean_field_system(model, table: LawTable, diffusion: np.ndarray) -> System:
     if model.tau is None:
         def reaction(u):
             rho = u[:, 0]
-            f, _ = table(rho)
+            f, _ = table(rho, slopes=False)
             return (rho * np.einsum("ix,ix->i", f, net(rho)))[:, None]
 
         def jacobian(u):
@@ -115,7 +117,7 @@ def mean_field_system(model, table: LawTable, diffusion: np.ndarray) -> System:
             return (g + rho * g_slope)[:, None, None]
 
         def potential(rho):
-            f, _ = table(rho)
+            f, _ = table(rho, slopes=False)
             return rho * (f @ diffusion)
 
         def potential_slope(rho):
@@ -130,7 +132,7 @@ def mean_field_system(model, table: LawTable, diffusion: np.ndarray) -> System:
 
     def reaction(u):
         rho = u.sum(axis=1)
-        f, _ = table(rho)
+        f, _ = table(rho, slopes=False)
         return net(rho) * u + (rho[:, None] * f - u) * rate
 
     def jacobian(u):
