@@ -371,3 +371,21 @@ def test_lattice_front_continuum_value_beside_it():
     with pytest.raises(sl.InputError, match=r"boundary='closed'"):
         sl.lattice_front(sl.LatticeModel(sl.Lattice((6, 100)), division=[1.0], death=[0.0], motility=[1.0]),
                          t_end=1.0, seed=0)
+
+
+def test_one_phenotype_logistic_growth_is_fisher_kpp():
+    # One phenotype, logistic growth r = b - d: c* = 2 sqrt(r D) (Fisher 1937; KPP 1937).
+    model = sl.MeanField({"grow": sl.Linear(0.0, 1.0)}, hexagonal, division=[1.0], death=[0.2])
+    run = sl.simulate_front(model, 1.0, diffusion=[1.0], length=150, dx=0.25, t_end=60)
+    assert run.kind == "pulled" and run.ok, run.message
+    assert run.speed == pytest.approx(2 * math.sqrt(0.8), rel=5e-3)
+    assert run.edge_fractions == pytest.approx([1.0])
+
+
+def test_coarse_grid_for_a_pushed_front_is_reported():
+    # No linear speed to size the grid in advance: the run reports a front core under 3 cells
+    # and the spacing to use (common practice, no source: resolve the core with several cells).
+    run = sl.simulate_front(go_or_grow(death=0.2), 2.0, diffusion=[1.0, 1.0], length=100, dx=2.0,
+                            t_end=100, occupied=40)
+    assert run.status == "coarse" and not run.ok
+    assert "use dx <= " in run.message
