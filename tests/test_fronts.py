@@ -231,6 +231,21 @@ def test_bad_front_input(options, pattern):
         sl.simulate_front(twin(None), 2.0, **arguments)
 
 
+def test_model_must_be_a_mean_field():
+    with pytest.raises(sl.InputError, match=r"`model` must be a MeanField \(got dict\)"):
+        sl.spreading_speed({}, 1.0, diffusion=[1.0])
+
+
+def test_no_motility_at_low_density_gives_zero_linear_speed():
+    # Growers do not move and only growers are present at zero density (fast switching):
+    # s(l)/l = s0/l has infimum 0 (Fisher 1937 with D = 0).
+    model = sl.MeanField({"grow": sl.Linear(0.0, 1.0), "move": sl.Linear(0.0, 0.0)}, hexagonal,
+                         division=[1.0, 0.0], death=[0.2, 0.2])
+    assert model.fractions(0.0, 5.0).tolist() == [1.0, 0.0]  # min-information: all grow
+    found = sl.spreading_speed(model, 5.0, diffusion=[0.0, 1.0])
+    assert found.speed == 0.0 and found.decay_rate == math.inf
+
+
 def test_ill_posed_fast_switching_transport_is_refused():
     # D(rho) rho falling with density is backward diffusion (ill-posed); a finite tau is fine.
     with pytest.raises(sl.InputError, match=r"backward diffusion.*finite `tau`"):

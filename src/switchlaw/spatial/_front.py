@@ -9,7 +9,7 @@ from .._validate import as_nonnegative, as_positive
 from ._core import DIMENSIONS, Grid, integrate
 from ._linear import linear_speed, spreading_speed, zero_jacobian
 from ._measure import composition, crossing, fit_speed, log_correction
-from ._model import LawTable, mean_field_system
+from ._model import LawTable, check_model, mean_field_system
 from ._results import FrontRun
 
 #: A pulled front's speed may differ from the grid's own ``c*`` by this much (relative;
@@ -103,6 +103,7 @@ def simulate_front(
     Hadeler, K. P. & Rothe, F. (1975). Travelling fronts in nonlinear diffusion equations.
     *J. Math. Biol.* 2:251–263.
     """
+    check_model(model)
     beta = as_nonnegative(beta, "beta")
     length = as_positive(length, "length")
     dx = as_positive(dx, "dx")

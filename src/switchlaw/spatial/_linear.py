@@ -15,7 +15,7 @@ import numpy as np
 from scipy.optimize import minimize_scalar
 
 from .._validate import as_nonnegative
-from ._model import LawTable, as_diffusion, phenotype_names
+from ._model import LawTable, as_diffusion, check_model, phenotype_names
 from ._results import SpreadingSpeed
 
 #: Relative tolerance of the minimisation over ``l`` (on ``log l``).
@@ -54,6 +54,9 @@ def linear_speed(j0, diffusion, *, dx=None) -> tuple[float, float, np.ndarray]:
     s0, v0 = principal(j0)
     if s0 <= 0.0:
         return float("nan"), float("nan"), v0
+    if D.diagonal().max() == 0.0:
+        # Nothing moves at low density: s(l)/l = s0/l falls to 0 as l grows (no spread).
+        return 0.0, float("inf"), v0
 
     def speed(log_l):
         l = np.exp(log_l)
@@ -147,6 +150,7 @@ def spreading_speed(model, beta, *, diffusion, table: LawTable | None = None) ->
     in cooperative models. *J. Math. Biol.* 45:183–218.
     van Saarloos, W. (2003). Front propagation into unstable states. *Phys. Rep.* 386:29–222.
     """
+    check_model(model)
     beta = as_nonnegative(beta, "beta")
     names = phenotype_names(model)
     D = as_diffusion(diffusion, names)

@@ -33,6 +33,14 @@ from ._core import System
 TABLE_POINTS = 257
 
 
+def check_model(model) -> None:
+    """``model`` must be a :class:`~switchlaw.MeanField`."""
+    from ..population._mean_field import MeanField
+
+    if not isinstance(model, MeanField):
+        raise InputError(f"`model` must be a MeanField (got {type(model).__name__})")
+
+
 def phenotype_names(model) -> list[str]:
     """The model's phenotype names (from its payoff at zero density)."""
     if model.phenotypes is not None:
