@@ -129,7 +129,7 @@ def simulate_front(
     if start >= length:
         raise InputError(f"`occupied` must be shorter than `length` ({length:g}) (got {start:g})")
 
-    if np.isfinite(c_star):
+    if np.isfinite(c_star) and c_star > 0:
         c_grid = linear_speed(j0, d_lin, dx=dx)[0]
         error = abs(c_grid - c_star) / c_star
         if error > GRID_TOLERANCE:
@@ -145,7 +145,7 @@ def simulate_front(
                 f"the far boundary before t_end = {t_end:g}; use length >= {needed:.4g}"
             )
     else:
-        c_grid = float("nan")
+        c_grid = c_star  # nan (zero density stable) or 0 (nothing moves at low density)
     rate = abs(linear.low_density_growth)
     too_short = linear.low_density_growth > 0 and t_end < 10.0 / rate
 
@@ -156,8 +156,9 @@ def simulate_front(
         top = bulk[0] if bulk is not None else 1.0
         rho = np.linspace(0.0, top, 513)
         slope = system.potential_slope(rho)
-        if (slope <= 0).any():
-            where = float(rho[np.argmax(slope <= 0)])
+        falling = slope < -1e-12 * max(1.0, float(np.abs(slope).max()))
+        if falling.any():
+            where = float(rho[np.argmax(falling)])
             raise InputError(
                 f"fast switching makes D(rho) rho fall with density at rho = {where:.3g} (backward "
                 "diffusion: the front equation is ill-posed); give the model a finite `tau`"
