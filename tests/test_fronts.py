@@ -404,3 +404,48 @@ def test_coarse_grid_for_a_pushed_front_is_reported():
                             t_end=100, occupied=40)
     assert run.status == "coarse" and not run.ok
     assert "use dx <= " in run.message
+
+
+def _shooting_speed(model, beta, D, c_max=1.0, bisections=22):
+    # Travelling wave D U'' + c U' + R(U) = 0 from the bulk state to 0: the heteroclinic orbit
+    # between the two saddles of the phase plane, found by shooting along the bulk's unstable
+    # manifold and bisecting on c (textbook phase-plane method, e.g. Murray, Mathematical
+    # Biology I, ch. 13; scipy's solve_ivp as the integrator, independent of the PDE code).
+    from scipy.integrate import solve_ivp
+
+    top = max(e.density for e in model.equilibria(beta)[1:] if e.stable)
+
+    def R(u):
+        return u * model.growth(min(max(u, 0.0), 1.0), beta)
+
+    slope = (R(top + 1e-6) - R(top - 1e-6)) / 2e-6
+
+    def overshoots(c):
+        mu = (-c + math.sqrt(c * c - 4 * D * slope)) / (2 * D)
+
+        def empty(_, z):
+            return z[0]
+
+        def turns(_, z):
+            return z[1]
+
+        empty.terminal = turns.terminal = True
+        turns.direction = 1
+        path = solve_ivp(lambda _, z: [z[1], -(c * z[1] + R(z[0])) / D], (0.0, 500.0),
+                         [top - 1e-6, -1e-6 * mu], events=[empty, turns], rtol=1e-10, atol=1e-13)
+        return path.t_events[0].size > 0
+
+    lo, hi = 0.0, c_max
+    for _ in range(bisections):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if overshoots(mid) else (lo, mid)
+    return 0.5 * (lo + hi)
+
+
+def test_pushed_front_speed_matches_the_travelling_wave():
+    # Strong Allee effect (no linear speed): the fast-switching front is pushed, and its speed
+    # is that of the travelling-wave solution found independently by phase-plane shooting.
+    model = go_or_grow(death=0.2)
+    run = sl.simulate_front(model, 2.0, diffusion=[1.0, 1.0], length=100, dx=0.25, t_end=100, occupied=40)
+    assert run.kind == "pushed" and run.ok, run.message
+    assert run.speed == pytest.approx(_shooting_speed(model, 2.0, 1.0), rel=5e-3)
