@@ -449,3 +449,21 @@ def test_pushed_front_speed_matches_the_travelling_wave():
     run = sl.simulate_front(model, 2.0, diffusion=[1.0, 1.0], length=100, dx=0.25, t_end=100, occupied=40)
     assert run.kind == "pushed" and run.ok, run.message
     assert run.speed == pytest.approx(_shooting_speed(model, 2.0, 1.0), rel=5e-3)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("dimension", [2, 3])
+def test_radial_front_agrees_with_py_pde(dimension):
+    # py-pde's polar and spherical grids (cell-centred, symmetric at the origin) on radial
+    # Fisher–KPP u_t = Lap u + u (1 - u): same front position at t_end.
+    import pde  # in the `test` extra
+
+    length, dx, t_end = 60.0, 0.25, 20.0
+    run = sl.simulate_front(twin(None, 1.0), 2.0, diffusion=[1.0, 1.0], length=length, dx=dx, t_end=t_end,
+                            dimension=dimension, rtol=1e-8)
+    grid = (pde.PolarSymGrid if dimension == 2 else pde.SphericalSymGrid)(length, int(length / dx))
+    state = pde.ScalarField(grid, run.density[0])
+    final = pde.PDE({"u": "laplace(u) + u * (1 - u)"}).solve(
+        state, t_range=t_end, solver="runge-kutta", adaptive=True, tolerance=1e-8, tracker=None, backend="numpy")
+    np.testing.assert_allclose(run.density[-1], final.data, atol=1e-4)
+    assert crossing(run.x, final.data, 0.5) == pytest.approx(run.positions[-1], abs=0.01)
