@@ -224,6 +224,9 @@ def test_front_to_xarray():
     (dict(length=40.0), r"`length` = 40 is too short for the run: .*use length >= "),
     (dict(dimension=4), r"`dimension` must be one of \(1, 2, 3\)"),
     (dict(dx=float("nan")), r"`dx`"),
+    (dict(frames=5), r"`frames` must be an integer >= 20 \(got 5\)"),
+    (dict(level=1.5), r"`level` must lie strictly between 0 and 1"),
+    (dict(occupied=200.0), r"`occupied` must be shorter than `length`"),
 ])
 def test_bad_front_input(options, pattern):
     arguments = dict(diffusion=[1.0, 1.0], length=150.0, dx=0.25, t_end=60.0) | options

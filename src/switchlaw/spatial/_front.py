@@ -113,8 +113,8 @@ def simulate_front(
     for name, value in (("level", level), ("edge_level", edge_level), ("window", window)):
         if not 0.0 < float(value) < 1.0:
             raise InputError(f"`{name}` must lie strictly between 0 and 1 (got {value!r})")
-    if int(frames) < 20:
-        raise InputError(f"`frames` must be at least 20 (got {frames!r})")
+    if isinstance(frames, bool) or not isinstance(frames, (int, np.integer)) or frames < 20:
+        raise InputError(f"`frames` must be an integer >= 20 (got {frames!r})")
     cells = int(round(length / dx))
     if cells < 40:
         raise InputError(f"`length / dx` must give at least 40 cells (got {cells})")
@@ -188,6 +188,7 @@ def simulate_front(
     felt = np.flatnonzero(total[:, -1] > BOUNDARY_LEVEL * reference)
     boundary_time = float(times[felt[0]]) if felt.size else float("nan")
     usable = times < boundary_time if felt.size else np.ones(times.size, bool)
+    usable[0] = True  # the initial state, even when it already touches the far end
     alive = usable & np.isfinite(positions)
     last = int(np.flatnonzero(alive)[-1]) if alive.any() else int(np.flatnonzero(usable)[-1])
     t_from = (1.0 - window) * times[last]
