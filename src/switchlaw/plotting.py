@@ -183,3 +183,114 @@ def plot_regime_map(regime_map, *, ax=None):
     ax.set_ylabel(regime_map.parameter)
     ax.set_title("population regimes")
     return ax
+
+
+def plot_front_profiles(run, *, times=None, axes=None):
+    """Density profiles of each phenotype at several times, one panel per phenotype.
+
+    Parameters
+    ----------
+    run : FrontRun
+    times : sequence of float, optional
+        Times to draw (the nearest saved ones; default five evenly spaced).
+    axes : sequence of matplotlib Axes, optional
+        One per phenotype; created side by side if not given.
+
+    Returns
+    -------
+    list of Axes
+    """
+    import matplotlib.pyplot as plt
+
+    names = list(run.phenotypes)
+    if axes is None:
+        _, axes = plt.subplots(1, len(names), figsize=(4.5 * len(names), 3.5), sharey=True,
+                               constrained_layout=True, squeeze=False)
+        axes = list(axes[0])
+    wanted = np.linspace(run.times[0], run.times[-1], 5) if times is None else np.asarray(times, float)
+    frames = sorted({int(np.argmin(np.abs(run.times - t))) for t in wanted})
+    colours = plt.cm.viridis(np.linspace(0.0, 0.9, len(frames)))
+    for k, (ax, name) in enumerate(zip(axes, names)):
+        for colour, i in zip(colours, frames):
+            ax.plot(run.x, run.profiles[i, :, k], color=colour, label=f"t = {run.times[i]:.3g}")
+        ax.set_xlabel("radius" if run.dimension > 1 else "position x")
+        ax.set_title(name)
+    axes[0].set_ylabel("density")
+    axes[0].legend(frameon=False, fontsize=8)
+    return list(axes)
+
+
+def plot_front_position(run, *, ax=None):
+    """Front position against time, with the fitted window and the linear-speed line.
+
+    Parameters
+    ----------
+    run : FrontRun
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
+    ax.plot(run.times, run.positions, color="k", label="front position")
+    ax.axvspan(*run.window, color="0.9", label="fitted window")
+    if np.isfinite(run.linear_speed):
+        i = int(np.argmin(np.abs(run.times - run.window[1])))
+        ax.plot(run.times, run.positions[i] + run.linear_speed * (run.times - run.times[i]), "--",
+                color="tab:blue", label=f"slope c* = {run.linear_speed:.4g}")
+    ax.set_xlabel("time")
+    ax.set_ylabel("front position")
+    ax.set_title(f"{run.kind} front, speed {run.speed:.4g}")
+    ax.legend(frameon=False, fontsize=8)
+    return ax
+
+
+#: Marker of each front kind in :func:`plot_front_speeds`.
+FRONT_MARKERS = {"pulled": "o", "pushed": "^", "stalled": "s", "retreating": "v"}
+
+
+def plot_front_speeds(scan, *, ax=None):
+    """Front speed against beta with the linear speed ``c*`` and each point's kind marked.
+
+    Parameters
+    ----------
+    scan : FrontScan, xarray.Dataset or sequence of FrontRun
+        A speed scan of :func:`~switchlaw.front_study`, a one-dimensional beta scan of
+        :class:`~switchlaw.FrontSummary`, or front runs.
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
+    if hasattr(scan, "linear_speeds"):  # FrontScan
+        betas, speeds, linear, kinds = scan.betas, scan.speeds, scan.linear_speeds, list(scan.kinds)
+    elif hasattr(scan, "data_vars"):
+        betas = np.asarray(scan["beta"].values, float)
+        speeds = np.asarray(scan["front_speed"].values, float)
+        linear = np.asarray(scan["linear_speed"].values, float)
+        kinds = [str(k) for k in np.asarray(scan["front_kind"].values).ravel()]
+    else:
+        betas = np.array([r.beta for r in scan])
+        speeds = np.array([r.speed for r in scan])
+        linear = np.array([r.linear_speed for r in scan])
+        kinds = [r.kind for r in scan]
+    ax.plot(betas, linear, color="tab:blue", label="linear speed c*")
+    kinds_array = np.array(kinds)
+    for kind, marker in FRONT_MARKERS.items():
+        chosen = kinds_array == kind
+        if chosen.any():
+            ax.plot(betas[chosen], speeds[chosen], marker, ls="none", color="k", ms=5, label=kind)
+    ax.axhline(0.0, color="0.6", lw=0.8)
+    ax.set_xlabel("β (nats per payoff unit)")
+    ax.set_ylabel("front speed (length per unit time)")
+    ax.legend(frameon=False, fontsize=8)
+    return ax

@@ -9,6 +9,7 @@ cases (:class:`LawSummary`, :class:`RegimeSummary`, :class:`CriticalBetas`,
 the implicit function theorem; global Sobol' indices use a Saltelli design.
 """
 
+from ._fronts import FrontSummary
 from ._designs import Design, latin_hypercube, saltelli_design, sobol_points
 from ._local import (
     CriticalSensitivity,
@@ -28,6 +29,7 @@ __all__ = [
     "Design",
     "EquilibriumSensitivity",
     "ExtinctionRisk",
+    "FrontSummary",
     "LawSummary",
     "Quantity",
     "RegimeSummary",

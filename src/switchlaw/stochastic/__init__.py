@@ -13,6 +13,7 @@ Two levels, both built on the same :class:`~switchlaw.SwitchingLaw`:
 from ._birth_death import BirthDeathSwitching
 from ._chain import simulate_hitting
 from ._compare import compare_mean_field
+from ._front import DIFFUSION_PER_MOTILITY, LatticeFront, lattice_front
 from ._hitting import hitting_probability
 from ._intervals import wilson_interval
 from ._lattice import BOUNDARIES, NEIGHBOURHOODS, Lattice
@@ -21,18 +22,21 @@ from ._results import ExtinctionCurve, HittingEstimate, LatticeRun, MeanFieldCom
 
 __all__ = [
     "BOUNDARIES",
+    "DIFFUSION_PER_MOTILITY",
     "ENGINES",
     "NEIGHBOURHOODS",
     "BirthDeathSwitching",
     "ExtinctionCurve",
     "HittingEstimate",
     "Lattice",
+    "LatticeFront",
     "LatticeModel",
     "LatticeRun",
     "MeanFieldComparison",
     "StochasticRun",
     "compare_mean_field",
     "hitting_probability",
+    "lattice_front",
     "simulate_hitting",
     "wilson_interval",
 ]
