@@ -124,6 +124,12 @@ _EXPORTS = {
     "sobol_indices": ".analysis",
     "sobol_points": ".analysis",
     "SobolIndices": ".analysis",
+    # calibration
+    "calibrate": ".calibration",
+    "Calibration": ".calibration",
+    "population_verdict": ".calibration",
+    "PopulationVerdict": ".calibration",
+    "Snapshot": ".calibration",
     # exporters
     "EXPORT_FORMATS": ".exporters",
     "Exported": ".exporters",
@@ -131,7 +137,9 @@ _EXPORTS = {
     "read_table": ".exporters",
     # plotting
     "plot_bifurcation": ".plotting",
+    "plot_calibration": ".plotting",
     "plot_law": ".plotting",
+    "plot_profiles": ".plotting",
     "plot_regime_map": ".plotting",
     "plot_tradeoff": ".plotting",
 }
