@@ -231,7 +231,7 @@ def from_table(table, *, environment_at, phenotype_names, densities) -> Data:
         lookup = {float(v): i for i, v in enumerate(labels)}
         missing = [s for s in state if float(s) not in lookup]
         if missing:
-            raise InputError(f"column 'state' holds {missing[0]!r}, not a state of the environment {labels.tolist()}")
+            raise InputError(f"column 'state' holds {float(missing[0])!r}, not a state of the environment {labels.tolist()}")
         y = np.array([lookup[float(s)] for s in state], dtype=int)
     else:
         signal = pd.to_numeric(frame["signal"], errors="coerce").to_numpy(dtype=float)
@@ -243,7 +243,7 @@ def from_table(table, *, environment_at, phenotype_names, densities) -> Data:
         outside = (signal < edges[0]) | (signal > edges[-1])
         if outside.any():
             raise InputError(
-                f"column 'signal' holds {signal[outside][0]!r}, outside every bin "
+                f"column 'signal' holds {float(signal[outside][0])!r}, outside every bin "
                 f"[{edges[0]:g}, {edges[-1]:g}] of the environment"
             )
         y = np.clip(np.searchsorted(edges, signal, side="right") - 1, 0, edges.size - 2)
