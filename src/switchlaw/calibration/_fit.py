@@ -421,7 +421,9 @@ def _logit_alternative(problem: _Problem) -> dict:
         return -value / problem.cells, -grad / problem.cells
 
     best = None
-    for start in (np.zeros(size), np.full(size, 0.5)):
+    # Per-cell data: the multinomial logit likelihood is concave, one start suffices.
+    starts = (np.zeros(size),) if problem.data.kind == "states" else (np.zeros(size), np.full(size, 0.5))
+    for start in starts:
         result = minimize(fun, start, jac=True, method="BFGS", options={"gtol": 1e-10, "maxiter": 2000})
         if best is None or result.fun < best.fun:
             best = result

@@ -117,8 +117,9 @@ def log_likelihood(kind: str, counts, conditions: Conditions, U, beta: float, ob
     noisy = conditions.log_channel is not None
     log_channel = conditions.log_channel if noisy else np.zeros((1, 1, 1))
     value_fn, grad_fn = _observed_functions(kind, noisy)
-    args = (jnp.asarray(float(beta)), jnp.asarray(U), jnp.asarray(log_r), jnp.asarray(support),
-            jnp.asarray(counts), jnp.asarray(conditions.probs), jnp.asarray(log_channel))
+    # numpy arrays go straight into the jitted functions (cheaper than jnp.asarray per call).
+    args = (np.float64(beta), np.asarray(U, dtype=float), log_r, support,
+            np.asarray(counts, dtype=float), conditions.probs, log_channel)
     if not with_gradient:
         return float(value_fn(*args)), None, None, r
     value, (d_beta, d_U, d_log_r) = grad_fn(*args)
