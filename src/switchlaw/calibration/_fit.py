@@ -57,6 +57,12 @@ class _Problem:
         self.conditions = Conditions(probs, log_channel)
         self.cells = float(data.counts.sum())
         self._starts = None
+        self._payoffs = {}
+        first = self.envs[0]
+        self._shared = all(
+            env.channel is None and env.values.shape == first.values.shape
+            and np.array_equal(env.values, first.values) for env in self.envs
+        )
 
     # -- parameters
     def split(self, theta) -> tuple[float, dict]:
@@ -75,12 +81,25 @@ class _Problem:
         return self.payoff
 
     def U(self, params: dict) -> np.ndarray:
+        """Payoff over decided-on states at every condition, shape ``(k, m, n)``."""
+        key = tuple(sorted(params.items()))
+        if key in self._payoffs:
+            return self._payoffs[key]
         given = self.payoff_at(params)
-        tables = []
-        for env in self.envs:
-            table, _ = payoff_table(given, env, self.phenotypes, where=" (payoff at the fitted parameters)")
-            tables.append(env.sensed_payoff(table))
-        return np.stack(tables)
+        if self._shared and (isinstance(given, Mapping) or not callable(given)):
+            # Same signal values and no receptor at every condition: one table serves all.
+            table, _ = payoff_table(given, self.envs[0], self.phenotypes, where=" (payoff at the fitted parameters)")
+            U = np.broadcast_to(table, (len(self.envs),) + table.shape)
+        else:
+            tables = []
+            for env in self.envs:
+                table, _ = payoff_table(given, env, self.phenotypes, where=" (payoff at the fitted parameters)")
+                tables.append(env.sensed_payoff(table))
+            U = np.stack(tables)
+        if len(self._payoffs) > 64:
+            self._payoffs.clear()
+        self._payoffs[key] = U
+        return U
 
     # -- likelihood
     def log_likelihood(self, theta, *, with_gradient: bool):
