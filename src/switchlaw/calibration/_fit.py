@@ -558,6 +558,18 @@ def calibrate(
     Raue, A. et al. (2009). Bioinformatics 25:1923–1929 (profile-likelihood identifiability;
     cited from memory).
     """
+    from threadpoolctl import threadpool_limits
+
+    # The optimiser's small dense algebra runs far slower on several BLAS threads when the
+    # machine is busy (measured 10x on 2 shared cores); one thread is also the fastest idle.
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _calibrate(observations, payoff, environment, free=free, densities=densities, fixed=fixed,
+                          objective=objective, phenotypes=phenotypes, start=start, starts=starts,
+                          seed=seed, bootstrap=bootstrap)
+
+
+def _calibrate(observations, payoff, environment, *, free, densities, fixed, objective, phenotypes,
+               start, starts, seed, bootstrap) -> Calibration:
     objective = choice(objective, "objective", OBJECTIVES)
     bounds_map, fixed_values, start_values = _check_parameters(payoff, free, fixed, start)
     if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
@@ -631,7 +643,7 @@ def calibrate(
             f"not identifiable from these data: {', '.join(weak)} (the profile likelihood does not "
             f"fall by {CUTOFF:.6f} within the bounds on both sides; beta and a common payoff scale "
             "enter the law only as a product)",
-            stacklevel=2,
+            stacklevel=3,  # the caller of calibrate()
         )
 
     # Goodness of fit and the verdict.

@@ -109,6 +109,8 @@ def log_likelihood(kind: str, counts, conditions: Conditions, U, beta: float, ob
     ``U`` is the payoff over decided-on states, shape ``(k, m, n)``; ``counts`` is
     ``(k, m_obs, n)`` per-cell counts (``kind="states"``) or ``(k, n)`` (``"fractions"``).
     """
+    if objective == "max-entropy" and kind == "states" and conditions.log_channel is None:
+        return _softmax_states(counts, U, beta, with_gradient)
     _, jnp = jax_float64()
     r = marginals(U, conditions.probs, beta, objective, starts)
     support = r > _SUPPORT
@@ -146,6 +148,20 @@ def log_likelihood(kind: str, counts, conditions: Conditions, U, beta: float, ob
             d_beta -= float(c_beta)
             d_U[i][np.ix_(keep, on)] -= np.asarray(c_U)
     return value, d_beta, d_U, r
+
+
+def _softmax_states(counts, U, beta: float, with_gradient: bool):
+    """Per-cell counts under a softmax law: the multinomial-logit likelihood and its exact
+    gradient in closed form (``dL/d(beta u) = n - N q``), no solver and no JAX needed."""
+    from scipy.special import log_softmax
+
+    log_q = log_softmax(beta * U, axis=2)
+    value = float(np.sum(counts * log_q))
+    r = np.full((U.shape[0], U.shape[2]), 1.0 / U.shape[2])
+    if not with_gradient:
+        return value, None, None, r
+    residual = counts - counts.sum(axis=2, keepdims=True) * np.exp(log_q)
+    return value, float(np.sum(residual * U)), beta * residual, r
 
 
 def law_probs(U: np.ndarray, r: np.ndarray, beta: float) -> np.ndarray:
