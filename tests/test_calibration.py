@@ -429,3 +429,55 @@ def test_bad_table_columns_are_named(tmp_path):
 def test_public_names():
     assert switchlaw.calibrate is calibrate
     assert "Calibration" in switchlaw.__all__ and "calibrate" in switchlaw.__all__
+
+
+def test_study_section_helper_fits_the_invented_csv(tmp_path):
+    # The helper a [calibration] study-file section calls: invented data written as a tidy CSV
+    # next to the study, read back, fitted; the known parameters lie in their intervals.
+    pd = pytest.importorskip("pandas")
+    matplotlib = pytest.importorskip("matplotlib")
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from switchlaw.calibration import run_calibration_section
+
+    data = invented_colony_data(seed=5)
+    pd.DataFrame(data.rows()).to_csv(tmp_path / "cells.csv", index=False)
+    section = {"data": "cells.csv", "free": {"beta": [0.1, 30.0], "half": [0.1, 10.0], "roam_value": [0.0, 1.0]},
+               "starts": 2}
+    out = run_calibration_section(section, payoff=colony_payoff, environment=colony_environment,
+                                  phenotypes=data.phenotypes, base_dir=tmp_path,
+                                  division=[1.0, 0.0], death=[0.27, 0.27])
+    fit = out["calibration"]
+    for name, value in data.truth.items():
+        assert fit.intervals[name][0] <= value <= fit.intervals[name][1], name
+    assert set(out["figures"]) == {"calibration_fit", "calibration_profiles"}
+    assert out["population"].regime in switchlaw.REGIMES
+    assert [row["parameter"] for row in out["table"]] == ["beta", "half", "roam_value"]
+    with pytest.raises(InputError, match=r"`calibration.colour` is not a known key"):
+        run_calibration_section({**section, "colour": 1}, payoff=colony_payoff, environment=colony_environment,
+                                phenotypes=data.phenotypes, base_dir=tmp_path)
+    with pytest.raises(InputError, match=r"`calibration.data` names no readable file"):
+        run_calibration_section({**section, "data": "missing.csv"}, payoff=colony_payoff,
+                                environment=colony_environment, phenotypes=data.phenotypes, base_dir=tmp_path)
+    plt.close("all")
+
+
+@pytest.mark.parametrize("draws", [pytest.param(600, marks=pytest.mark.slow), 150])
+def test_posterior_agrees_with_the_large_sample_theory(rng, draws):
+    # Bernstein-von Mises (e.g. van der Vaart 1998, Asymptotic Statistics, ch. 10): with many
+    # cells and a flat prior the posterior is close to Normal(MLE, Wald se^2). Reference se
+    # from statsmodels' GLM.
+    sm = pytest.importorskip("statsmodels.api")
+    env, delta, counts = _logistic_data(rng, beta=1.3, cells=20_000)
+    fit = calibrate(counts, _delta_table(delta), env, free={"beta": (0.01, 20.0)}, posterior=draws, seed=3)
+    glm = sm.GLM(
+        np.r_[np.zeros(7), np.ones(7)], np.r_[delta, delta][:, None],
+        family=sm.families.Binomial(), freq_weights=np.r_[counts[:, 0], counts[:, 1]],
+    ).fit(tol=1e-14)
+    sample = fit.posterior["beta"]
+    assert sample.shape == (draws,)
+    # Monte Carlo error shrinks with the draws: tolerances for 150 draws, tighter for 600.
+    tolerance = 0.2 if draws >= 600 else 0.35
+    assert sample.mean() == pytest.approx(glm.params[0], abs=tolerance * glm.bse[0])
+    assert sample.std(ddof=1) == pytest.approx(glm.bse[0], rel=tolerance)

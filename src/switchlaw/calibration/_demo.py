@@ -167,14 +167,15 @@ def run_calibration_section(section: Mapping, *, payoff, environment, phenotypes
         verdict = population_verdict(result, division=division, death=death, tau=tau)
     drawn = {}
     if figures:
-        import matplotlib.pyplot as plt
+        from matplotlib.figure import Figure  # no pyplot: no global figure state
 
         from ..plotting import plot_calibration, plot_profiles
 
-        fig, ax = plt.subplots(figsize=(5, 3.5))
-        plot_calibration(result, ax=ax)
+        fig = Figure(figsize=(5, 3.5), layout="constrained")
+        plot_calibration(result, ax=fig.subplots())
         drawn["calibration_fit"] = fig
-        fig, axes = plt.subplots(1, len(result.estimates), figsize=(4 * len(result.estimates), 3.2), squeeze=False)
+        fig = Figure(figsize=(4 * len(result.estimates), 3.2), layout="constrained")
+        axes = fig.subplots(1, len(result.estimates), squeeze=False)
         for ax, name in zip(axes[0], result.estimates):
             plot_profiles(result, name, ax=ax)
         drawn["calibration_profiles"] = fig

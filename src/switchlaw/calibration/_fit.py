@@ -487,6 +487,7 @@ def calibrate(
     starts: int = 4,
     seed=0,
     bootstrap: int = 0,
+    posterior: int = 0,
 ) -> Calibration:
     """Fit ``beta`` and payoff parameters to observed phenotypes by maximum likelihood.
 
@@ -526,6 +527,9 @@ def calibrate(
     bootstrap : int
         Parametric bootstrap replicates (0: none): data simulated from the fit with the
         observed row totals, refitted; percentile intervals in ``bootstrap_intervals``.
+    posterior : int
+        Posterior draws (0: none) by NumPyro's NUTS sampler with uniform priors on the bounds
+        (needs the ``bayes`` extra); as many warm-up steps; draws in ``posterior``.
 
     Returns
     -------
@@ -565,17 +569,19 @@ def calibrate(
     with threadpool_limits(limits=1, user_api="blas"):
         return _calibrate(observations, payoff, environment, free=free, densities=densities, fixed=fixed,
                           objective=objective, phenotypes=phenotypes, start=start, starts=starts,
-                          seed=seed, bootstrap=bootstrap)
+                          seed=seed, bootstrap=bootstrap, posterior=posterior)
 
 
 def _calibrate(observations, payoff, environment, *, free, densities, fixed, objective, phenotypes,
-               start, starts, seed, bootstrap) -> Calibration:
+               start, starts, seed, bootstrap, posterior) -> Calibration:
     objective = choice(objective, "objective", OBJECTIVES)
     bounds_map, fixed_values, start_values = _check_parameters(payoff, free, fixed, start)
     if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
         raise InputError(f"`starts` must be an integer >= 1 (got {starts!r})")
     if isinstance(bootstrap, bool) or not isinstance(bootstrap, (int, np.integer)) or bootstrap < 0:
         raise InputError(f"`bootstrap` must be an integer >= 0 (got {bootstrap!r})")
+    if isinstance(posterior, bool) or not isinstance(posterior, (int, np.integer)) or posterior < 0:
+        raise InputError(f"`posterior` must be an integer >= 0 (got {posterior!r})")
     if not callable(environment) and not isinstance(environment, Environment):
         raise InputError(
             "`environment` must be an Environment or a callable density -> Environment "
@@ -674,6 +680,12 @@ def _calibrate(observations, payoff, environment, *, free, densities, fixed, obj
         band = np.stack([np.quantile(boot_fractions, 0.025, axis=0),
                          np.quantile(boot_fractions, 0.975, axis=0)], axis=-1)
 
+    draws = None
+    if posterior:
+        from ._posterior import sample_posterior
+
+        draws = sample_posterior(problem, theta, bounds, int(posterior), seed)
+
     beta, params = problem.split(theta)
     fitted_payoff = problem.payoff_at(params)
     law = None
@@ -709,6 +721,7 @@ def _calibrate(observations, payoff, environment, *, free, densities, fixed, obj
         bounds=bounds_map,
         bootstrap_intervals=boot_intervals,
         bootstrap_estimates=boot_estimates,
+        posterior=draws,
         converged=bool(converged),
         status=status,
         message=message,

@@ -74,6 +74,10 @@ class Calibration:
         that lie inside the 95% cut-off (or the bootstrap's 2.5–97.5% quantiles).
     bootstrap_intervals : dict str -> (float, float) or None
         Percentile intervals from a parametric bootstrap, when asked for.
+    bootstrap_estimates : ndarray or None
+        The refitted parameter vectors, shape (replicates, free parameters).
+    posterior : dict str -> ndarray or None
+        NUTS draws of each free parameter (uniform priors on the bounds), when asked for.
     converged : bool
         The projected gradient of the mean log-likelihood per cell, times each parameter's
         scale, is below ``tolerance`` at the estimate, and the best start was reached again.
@@ -106,6 +110,7 @@ class Calibration:
     bounds: dict
     bootstrap_intervals: dict | None
     bootstrap_estimates: np.ndarray | None
+    posterior: dict | None
     converged: bool
     status: str
     message: str
