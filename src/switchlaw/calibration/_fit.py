@@ -234,26 +234,32 @@ def _check_parameters(payoff, free, fixed, start):
     return bounds, values, starts
 
 
+def _snapshots(observations) -> list | None:
+    """The snapshots in ``observations`` (one or a sequence), or ``None`` for other forms."""
+    if isinstance(observations, Snapshot):
+        return [observations]
+    if isinstance(observations, (list, tuple)) and observations and all(isinstance(o, Snapshot) for o in observations):
+        return list(observations)
+    return None
+
+
 def _observations(observations, payoff_start, environment, densities, phenotypes):
     """Phenotype names and the observed counts, checked against the environment and payoff."""
-    rho0 = None
-    if densities is not None and np.ndim(densities) >= 1 and np.size(densities) > 0:
-        try:
-            rho0 = float(np.ravel(np.asarray(densities, dtype=float))[0])
-        except (TypeError, ValueError):
-            rho0 = None
-    if isinstance(observations, Snapshot) or (
-        isinstance(observations, (list, tuple)) and observations and all(isinstance(o, Snapshot) for o in observations)
-    ):
-        first = observations if isinstance(observations, Snapshot) else observations[0]
-        rho0 = float((np.asarray(first.labels) != 0).mean()) if rho0 is None else rho0
-    env0 = _environment_at(environment, rho0 if rho0 is not None else (0.5 if callable(environment) and not isinstance(environment, Environment) else None))
+    snapshots = _snapshots(observations)
+    # A density at which to ask the environment for its states and the payoff for its columns.
+    try:
+        rho0 = float(np.ravel(np.asarray(densities, dtype=float))[0])
+    except (TypeError, ValueError, IndexError):
+        rho0 = None
+    if rho0 is None and snapshots is not None:
+        rho0 = float((np.asarray(snapshots[0].labels) != 0).mean())
+    if rho0 is None and not isinstance(environment, Environment):
+        rho0 = 0.5  # only the state labels and payoff columns are read from it
+    env0 = _environment_at(environment, rho0)
     table, names = payoff_table(payoff_start, env0, phenotypes)
     m, n = env0.hidden_probs.size, table.shape[1]
-    if isinstance(observations, Snapshot) or (
-        isinstance(observations, (list, tuple)) and observations and all(isinstance(o, Snapshot) for o in observations)
-    ):
-        return names, from_snapshots(observations, densities, states=m, phenotypes=n)
+    if snapshots is not None:
+        return names, from_snapshots(snapshots, densities, states=m, phenotypes=n)
     if is_table(observations):
         return names, from_table(
             observations, environment_at=lambda rho: _environment_at(environment, rho),
