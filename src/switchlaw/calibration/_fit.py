@@ -247,10 +247,14 @@ def _observations(observations, payoff_start, environment, densities, phenotypes
     """Phenotype names and the observed counts, checked against the environment and payoff."""
     snapshots = _snapshots(observations)
     # A density at which to ask the environment for its states and the payoff for its columns.
-    try:
-        rho0 = float(np.ravel(np.asarray(densities, dtype=float))[0])
-    except (TypeError, ValueError, IndexError):
-        rho0 = None
+    rho0 = None
+    if densities is not None:
+        try:
+            rho0 = float(np.ravel(np.asarray(densities, dtype=float))[0])
+        except (TypeError, ValueError, IndexError):
+            rho0 = None  # from_arrays / from_snapshots name the problem
+        if rho0 is not None and not 0.0 <= rho0 <= 1.0:
+            rho0 = None
     if rho0 is None and snapshots is not None:
         rho0 = float((np.asarray(snapshots[0].labels) != 0).mean())
     if rho0 is None and not isinstance(environment, Environment):
