@@ -136,6 +136,12 @@ _EXPORTS = {
     "sobol_indices": ".analysis",
     "sobol_points": ".analysis",
     "SobolIndices": ".analysis",
+    # calibration
+    "calibrate": ".calibration",
+    "Calibration": ".calibration",
+    "population_verdict": ".calibration",
+    "PopulationVerdict": ".calibration",
+    "Snapshot": ".calibration",
     # exporters
     "EXPORT_FORMATS": ".exporters",
     "Exported": ".exporters",
@@ -146,7 +152,9 @@ _EXPORTS = {
     "plot_front_position": ".plotting",
     "plot_front_profiles": ".plotting",
     "plot_front_speeds": ".plotting",
+    "plot_calibration": ".plotting",
     "plot_law": ".plotting",
+    "plot_profiles": ".plotting",
     "plot_regime_map": ".plotting",
     "plot_tradeoff": ".plotting",
 }

@@ -294,3 +294,71 @@ def plot_front_speeds(scan, *, ax=None):
     ax.set_ylabel("front speed (length per unit time)")
     ax.legend(frameon=False, fontsize=8)
     return ax
+
+
+def plot_calibration(calibration, *, ax=None):
+    """Observed against fitted phenotype fractions by density, with the 95% band.
+
+    Parameters
+    ----------
+    calibration : Calibration
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+
+    Notes
+    -----
+    Points are the observed fractions, lines the fitted ones; the shaded band is the
+    calibration's ``fraction_band`` (envelope over the profile paths inside the 95% cut-off,
+    or bootstrap quantiles).
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(5, 3.5), constrained_layout=True)
+    x = calibration.densities if calibration.densities is not None else np.arange(calibration.observed_fractions.shape[0])
+    order = np.argsort(x)
+    for j, name in enumerate(calibration.phenotypes):
+        line, = ax.plot(x[order], calibration.fitted_fractions[order, j], label=f"{name} (fitted)")
+        ax.fill_between(x[order], calibration.fraction_band[order, j, 0], calibration.fraction_band[order, j, 1],
+                        color=line.get_color(), alpha=0.25, linewidth=0)
+        ax.plot(x[order], calibration.observed_fractions[order, j], "o", color=line.get_color(),
+                markersize=4, label=f"{name} (observed)")
+    ax.set_xlabel("density" if calibration.densities is not None else "condition")
+    ax.set_ylabel("phenotype fraction")
+    ax.set_ylim(-0.02, 1.02)
+    ax.set_title("observed and fitted fractions (95% band)")
+    ax.legend(frameon=False, fontsize="small")
+    return ax
+
+
+def plot_profiles(calibration, parameter=None, *, ax=None):
+    """The profile log-likelihood drop of one free parameter, with the 95% cut-off line.
+
+    Parameters
+    ----------
+    calibration : Calibration
+    parameter : str, optional
+        Default: the first free parameter.
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Axes
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(4, 3.2), constrained_layout=True)
+    name = next(iter(calibration.profiles)) if parameter is None else parameter
+    profile = calibration.profiles[name]
+    ax.plot(profile.values, profile.drops, "-o", markersize=3)
+    ax.axhline(profile.cutoff, color="0.4", linestyle="--", label=f"95% cut-off {profile.cutoff:.4f}")
+    ax.axvline(calibration.estimates[name], color="0.6", linestyle=":")
+    ax.set_xlabel(name)
+    ax.set_ylabel("fall in log-likelihood (nats)")
+    ax.set_ylim(bottom=-0.05 * profile.cutoff)
+    ax.legend(frameon=False, fontsize="small")
+    return ax
