@@ -10,7 +10,7 @@ from ..spatial import KINDS, simulate_front
 from ..spatial._model import as_diffusion, phenotype_names
 from ._points import _PointFunction, _phenotypes
 from ._quantity import Quantity
-from ._study import Study
+from ._family import ModelFamily
 
 
 class FrontSummary(_PointFunction):
@@ -18,7 +18,7 @@ class FrontSummary(_PointFunction):
 
     Parameters
     ----------
-    study : MeanField or callable
+    model : MeanField or callable
         The model, or a builder (see :func:`scan`).
     diffusion : sequence of float or mapping str -> float
         Per-phenotype diffusion coefficients (length^2 per unit time).
@@ -32,14 +32,14 @@ class FrontSummary(_PointFunction):
     ``edge_fraction`` (along ``phenotype``), ``front_status`` (``ok`` or why not).
     """
 
-    def __init__(self, study, *, diffusion, length, dx, t_end, dimension: int = 1, fixed=None):
-        self.study = Study(study, fixed)
+    def __init__(self, model, *, diffusion, length, dx, t_end, dimension: int = 1, fixed=None):
+        self.family = ModelFamily(model, fixed)
         self.diffusion = diffusion
         self.options = dict(length=length, dx=dx, t_end=t_end, dimension=dimension)
-        names = _phenotypes(self.study, 0.0)
-        model = self.study.default_model()
-        if model is not None:
-            as_diffusion(diffusion, phenotype_names(model))  # fail early on bad coefficients
+        names = _phenotypes(self.family, 0.0)
+        default = self.family.default_model()
+        if default is not None:
+            as_diffusion(diffusion, phenotype_names(default))  # fail early on bad coefficients
         self.scan_labels = {
             "front_speed": Quantity("fitted front speed", "length per unit time"),
             "linear_speed": Quantity("linear spreading speed c*", "length per unit time"),
@@ -52,9 +52,9 @@ class FrontSummary(_PointFunction):
         }
 
     def __call__(self, point, rng):
-        values = self.study.values(point)
-        model = self.study.build(values)
-        run = simulate_front(model, self.study.beta(values), diffusion=self.diffusion, **self.options)
+        values = self.family.values(point)
+        model = self.family.build(values)
+        run = simulate_front(model, self.family.beta(values), diffusion=self.diffusion, **self.options)
         return {
             "front_speed": run.speed,
             "linear_speed": run.linear_speed,
