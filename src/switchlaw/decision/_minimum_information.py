@@ -185,8 +185,8 @@ def solve_marginal(
 def _newton_with_fallback(problem, start, *, allowed, tol, max_iter) -> MarginalResult:
     """Newton on the marginal; should it stall, Blahut–Arimoto finishes from where it stopped."""
     result = newton_marginal(problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500)
-    if result.converged:
-        return result
+    if result.converged or result.rounding_limited:
+        return result  # Blahut–Arimoto cannot resolve what rounding hides from Newton
     fallback = blahut_arimoto_marginal(problem, result.marginal, allowed=allowed, tol=tol)
     return MarginalResult(
         fallback.marginal,
