@@ -46,8 +46,8 @@ POLICY_RTOL = 1e-10
 #: ... or, when float64 rounding stops the corrections from shrinking (entering masses below
 #: about 1e-6), once they are below this.
 NOISE_RTOL = 1e-8
-#: Kuhn–Tucker residuals ``c(x) - 1`` below this are float64 rounding (a few ulps of 1).
-_RESIDUAL_NOISE = 64 * np.finfo(float).eps
+#: Newton corrections tried at most once the objective gap is below tolerance.
+_FINISH_STEPS = 12
 
 
 @dataclass(frozen=True)
@@ -59,8 +59,9 @@ class MarginalResult:
     iterations: int
     converged: bool
     message: str
-    #: True when float64 rounding, not the iteration, limits the policy's accuracy.
-    rounding_limited: bool = False
+    #: True when the objective is certified but the policy is not (float64 rounding or the
+    #: iteration limit on a nearly flat objective): Blahut–Arimoto cannot do better.
+    policy_uncertified: bool = False
 
 
 def _gap(c: np.ndarray, allowed: np.ndarray) -> float:
@@ -173,8 +174,11 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     support = r > 0
     ratio = np.minimum(ev.ratio[:, index], _RATIO_CAP)
     c = ev.c[index]
+    # c - 1 instead of c on the right-hand side: the constant only shifts the multiplier of
+    # sum r = 1, and near the optimum it would swamp the differences that set the step.
+    excess = c - 1.0
     if not (c[~support] > 1.0 + tol).any():
-        step = _support_newton_step(problem, ratio[:, support], r[support], c[support])
+        step = _support_newton_step(problem, ratio[:, support], r[support], excess[support])
         if (r[support] + step >= 0).all():
             direction = np.zeros(index.size)
             direction[support] = step
@@ -184,7 +188,9 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     w = simplex_qp(hessian, -c - hessian @ r)
     if np.array_equal(w > 0, support):
         direction = np.zeros(index.size)
-        direction[support] = _support_newton_step(problem, ratio[:, support], r[support], c[support])
+        direction[support] = _support_newton_step(
+            problem, ratio[:, support], r[support], excess[support]
+        )
         return direction
     return w - r
 
@@ -225,35 +231,70 @@ def kkt_residual(
     return np.asarray(residual, dtype=np.float64)
 
 
+def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended: bool = False):
+    """The support and the Newton correction of its masses (accurate residual)."""
+    residual = kkt_residual(problem, ev, r, extended=extended)
+    support = index[r[index] > 0]
+    ratio = np.minimum(ev.ratio[:, support], _RATIO_CAP)
+    return support, _support_newton_step(problem, ratio, r[support], residual[support])
+
+
+def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarray:
+    """Phenotypes in use that a Newton correction would drive to zero or below."""
+    support, step = _correction(problem, ev, r, index)
+    return support[r[support] + step <= 0]
+
+
 def _finish_step(
     problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, extended: bool
 ):
-    """Newton correction on the support with the accurate residual, or ``None``.
+    """Newton correction on the support with the accurate residual.
 
-    ``None`` when the support is not settled: a phenotype in use would turn negative (the
-    quadratic model over the simplex decides), or one outside has a resolvable positive
-    residual and is brought in with the mass of one Newton step along ``e_x - r``.
-    Returns ``(new r, relative size of the correction)``.
+    Returns ``(new r, relative size of the correction)``, or ``None`` when the correction
+    would drive a phenotype in use to zero or below (the support is not settled to the
+    policy tolerance; phenotypes outside already have ``c(x) <= e^tol`` from the gap test).
     """
-    residual = kkt_residual(problem, ev, r, extended=extended)
-    support = index[r[index] > 0]
-    outside = index[r[index] == 0]
-    if outside.size and residual[outside].max() > _RESIDUAL_NOISE:
-        x = int(outside[np.argmax(residual[outside])])
-        b = ev.ratio[:, x] - 1.0
-        curvature = float(problem.p @ (b * b))
-        mass = min(0.5, float(residual[x]) / curvature) if curvature > 0 else 0.5
-        trial = (1.0 - mass) * r
-        trial[x] += mass
-        return trial / trial.sum(), np.inf
-    ratio = np.minimum(ev.ratio[:, support], _RATIO_CAP)
-    step = _support_newton_step(problem, ratio, r[support], residual[support])
+    support, step = _correction(problem, ev, r, index, extended)
     if not np.isfinite(step).all() or (r[support] + step <= 0).any():
         return None
     trial = r.copy()
     trial[support] += step
     size = float(np.max(np.abs(step) / r[support]))
     return trial / trial.sum(), size
+
+
+def finish(problem: Reduced, ev: Evaluation, r: np.ndarray, index, allowed, tol: float):
+    """Newton finish from a marginal whose objective gap is below ``tol``.
+
+    Returns ``(r, ev, gap, size, certified)``: the last marginal whose gap is still below
+    ``tol``, and the relative size of the last Newton correction (an estimate of the
+    remaining relative error of every mass in use, Newton's method converging quadratically).
+    """
+    gap = _gap(ev.c, allowed)
+    previous = np.inf
+    extended = False
+    size = np.inf
+    for _ in range(_FINISH_STEPS):
+        finish = _finish_step(problem, ev, r, index, extended)
+        if finish is None:
+            return r, ev, gap, np.inf, False
+        trial, size = finish
+        if size <= POLICY_RTOL:
+            return r, ev, gap, size, True
+        if size > 0.25 * previous:  # the corrections stopped shrinking: rounding level
+            if size <= NOISE_RTOL:
+                return r, ev, gap, size, True
+            if extended:
+                return r, ev, gap, size, False
+            extended, previous = True, np.inf
+            continue
+        trial_ev = evaluate(problem, trial)
+        trial_gap = _gap(trial_ev.c, allowed)
+        if trial_gap > tol:
+            return r, ev, gap, size, False
+        previous = size
+        r, ev, gap = trial, trial_ev, trial_gap
+    return r, ev, gap, size, False
 
 
 def newton_marginal(
@@ -282,38 +323,24 @@ def newton_marginal(
     ev = evaluate(problem, r)
     gap = _gap(ev.c, allowed)
     iteration = 0
-    previous = np.inf
-    extended = False
     for iteration in range(1, max_iter + 1):
         if gap <= tol:
-            finish = _finish_step(problem, ev, r, index, extended)
-            if finish is not None:
-                trial, size = finish
-                if size <= POLICY_RTOL:
-                    return MarginalResult(
-                        r, gap, iteration - 1, True,
-                        f"certified gap below tolerance; Newton correction {size:.2g} relative",
-                    )
-                if size > 0.25 * previous:  # corrections stopped shrinking: rounding
-                    if not extended:
-                        extended, previous = True, np.inf
-                        continue
-                    if size <= NOISE_RTOL:
-                        return MarginalResult(
-                            r, gap, iteration - 1, True,
-                            f"certified gap below tolerance; Newton correction {size:.2g} "
-                            "relative (float64 rounding level)",
-                        )
-                    return MarginalResult(
-                        r, gap, iteration - 1, False,
-                        f"the policy is resolved only to {size:.2g} relative: float64 "
-                        "rounding next to a transition", rounding_limited=True,
-                    )
-                previous = size
-                r = trial
-                ev = evaluate(problem, r)
-                gap = _gap(ev.c, allowed)
-                continue
+            r, ev, gap, size, certified = finish(problem, ev, r, index, allowed, tol)
+            if certified:
+                return MarginalResult(
+                    r, gap, iteration - 1, True,
+                    f"certified gap below tolerance; Newton correction {size:.2g} relative",
+                )
+            why = (
+                f"the policy is resolved only to {size:.2g} relative"
+                if np.isfinite(size)
+                else "a Newton correction would empty a phenotype in use"
+            )
+            return MarginalResult(
+                r, gap, iteration - 1, False,
+                f"certified gap {gap:.2g} nats, but {why} (nearly flat objective)",
+                policy_uncertified=True,
+            )
         unused = index[r[index] == 0]
         if unused.size and ev.c[unused].max() > _FAR:
             entered = _enter(problem, r, ev, int(unused[np.argmax(ev.c[unused])]))
@@ -323,8 +350,8 @@ def newton_marginal(
                 gap = _gap(ev.c, allowed)
                 continue
         direction = _direction(problem, ev, r[index], index, tol)
-        gradient = -ev.c[index]
-        decrease = -float(gradient @ direction)
+        # The gradient is -c; along a direction with sum zero only c - 1 counts (no cancellation).
+        decrease = float((ev.c[index] - 1.0) @ direction)
         # Below float resolution the sign of the predicted decrease is noise: take the step.
         unresolved = abs(decrease) < _FLOOR * (1.0 + abs(ev.objective))
         if not (decrease > 0 or unresolved) or not np.any(direction):
@@ -345,6 +372,5 @@ def newton_marginal(
         ev = evaluate(problem, r)
         gap = _gap(ev.c, allowed)
     return MarginalResult(
-        r, gap, iteration, False,
-        f"Newton stopped with certified gap {gap:.3g} nats before the policy was certified",
+        r, gap, iteration, False, f"Newton stopped with certified gap {gap:.3g} nats"
     )

@@ -136,6 +136,11 @@ def tradeoff(
     """
     u, p = check_problem(payoff, env)
     choice(objective, "objective", OBJECTIVES)
+    if isinstance(betas, (str, bytes)) or np.asarray(betas).dtype.kind in "USObb":
+        if np.asarray(betas).dtype.kind != "O" or any(
+            isinstance(b, (str, bytes, bool)) for b in np.ravel(np.asarray(betas, dtype=object))
+        ):
+            raise InputError(f"`betas` must be real numbers (got {betas!r:.60})")
     grid = as_array(betas, "betas", ndim=1)
     if (grid < 0).any():
         raise InputError(f"`betas` must be >= 0 (got minimum {float(grid.min())!r})")
