@@ -33,13 +33,21 @@ def blahut_arimoto_marginal(
     r = np.where(allowed, start, 0.0)
     r = (1.0 - _MIX) * r / r.sum() + _MIX * uniform
     gap = np.inf
+    next_check = 0
+    last = None
     for iteration in range(max_iter + 1):
         ev = evaluate(problem, r)
         gap = _gap(ev.c, allowed)
-        if gap <= tol:
-            return _certify(problem, ev, r, allowed, tol, iteration)
+        if gap <= tol and iteration >= next_check:
+            last, draining = _certify(problem, ev, r, allowed, tol, iteration)
+            if last.converged or not draining:
+                return last
+            # Masses still draining towards zero: alternate on, and look again later.
+            next_check = iteration + max(10, iteration // 4)
         r = r * ev.c
         r /= r.sum()
+    if last is not None:
+        return last
     return MarginalResult(
         r, gap, max_iter, False, f"iteration limit reached with certified gap {gap:.3g} nats"
     )
@@ -52,6 +60,7 @@ def _certify(problem: Reduced, ev, r: np.ndarray, allowed: np.ndarray, tol: floa
     to zero first, as long as the gap stays below ``tol``.
     """
     index = np.flatnonzero(allowed)
+    draining = np.zeros(0, dtype=int)
     for _ in range(3):
         draining = emptied(problem, ev, r, index)
         if not draining.size:
@@ -63,15 +72,16 @@ def _certify(problem: Reduced, ev, r: np.ndarray, allowed: np.ndarray, tol: floa
         if _gap(cleaned_ev.c, allowed) > tol:
             break
         r, ev = cleaned, cleaned_ev
+        draining = np.zeros(0, dtype=int)
     r, ev, gap, size, certified = finish(problem, ev, r, index, allowed, tol)
     if certified:
         return MarginalResult(
             r, gap, iteration, True,
             f"certified gap below tolerance; Newton correction {size:.2g} relative",
-        )
+        ), False
     return MarginalResult(
         r, gap, iteration, False,
         f"certified gap {gap:.2g} nats, but the policy is not certified (Newton correction "
         f"{size:.2g} relative): the alternation stalls on a nearly flat objective",
         policy_uncertified=True,
-    )
+    ), bool(draining.size)

@@ -20,6 +20,12 @@ def check_problem(payoff, env) -> tuple[np.ndarray, np.ndarray]:
     state, ``E[u(Y, x) | S = s]``.
     """
     probs = as_distribution(env, "env")
+    raw = np.asarray(env.probs if hasattr(env, "probs") and not isinstance(env, np.ndarray) else env,
+                     dtype=np.float64)
+    if raw.shape == probs.shape and abs(float(raw.sum()) - 1.0) <= 8 * np.finfo(float).eps:
+        # Already normalised to rounding: dividing by the sum would perturb every entry by an
+        # ulp, and next to a transition the policy is that sensitive (1e-16 / (beta/beta_c - 1)).
+        probs = raw.copy()
     if getattr(env, "channel", None) is not None:
         true_states = env.channel.shape[0]
         return env.sensed_payoff(as_payoff(payoff, true_states)), probs

@@ -43,9 +43,11 @@ _RIDGE = 1e-12
 #: A policy is certified once the Newton correction of every marginal mass in use is below
 #: this, relative to the mass.
 POLICY_RTOL = 1e-10
-#: ... or, when float64 rounding stops the corrections from shrinking (entering masses below
-#: about 1e-6), once they are below this.
-NOISE_RTOL = 1e-8
+#: ... or, when rounding stops the corrections from shrinking (entering masses below about
+#: 1e-6), once they are below this.
+NOISE_RTOL = 1e-9
+#: Marginal masses below this are finished with the residual in extended precision.
+_SMALL_MASS = 1e-3
 #: Newton corrections tried at most once the objective gap is below tolerance.
 _FINISH_STEPS = 12
 
@@ -272,7 +274,9 @@ def finish(problem: Reduced, ev: Evaluation, r: np.ndarray, index, allowed, tol:
     """
     gap = _gap(ev.c, allowed)
     previous = np.inf
-    extended = False
+    # A mass below _SMALL_MASS is set by a residual that cancels to as many digits: float64
+    # rounding of the residual alone would move it by more than the tolerance.
+    extended = bool(r[index][r[index] > 0].min() < _SMALL_MASS)
     size = np.inf
     for _ in range(_FINISH_STEPS):
         finish = _finish_step(problem, ev, r, index, extended)
