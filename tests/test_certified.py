@@ -177,3 +177,18 @@ def test_critical_beta_keeps_its_digits_in_large_payoff_units():
     for unit in [1e-6, 1.0, 1e6, 1e12]:
         beta_c = sl.first_critical_beta(-(1 - np.eye(2)) * unit, [0.8, 0.2])
         assert beta_c * unit == pytest.approx(math.log(4), rel=1e-13)
+
+
+def test_every_transition_keeps_its_digits_in_small_and_large_units():
+    # The objective depends on beta * u only, so beta_k * unit is the same for every unit
+    # (common practice, no source: a change of units is a symmetry of the problem).
+    rng = np.random.default_rng(11)
+    payoff, env = rng.normal(size=(12, 4)), rng.dirichlet(np.ones(12))
+    reference = sl.tradeoff(payoff, env, np.linspace(0, 6, 13)).critical_betas
+    assert len(reference) >= 2
+    for unit in [1e-9, 1e9]:
+        scaled = sl.tradeoff(payoff * unit, env, np.linspace(0, 6, 13) / unit).critical_betas
+        assert len(scaled) == len(reference)
+        for a, b in zip(scaled, reference):
+            assert a.beta * unit == pytest.approx(b.beta, rel=1e-9)
+            assert (a.entering, a.leaving) == (b.entering, b.leaving)
