@@ -198,9 +198,11 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
 
 
 def kkt_residual(
-    problem: Reduced, ev: Evaluation, r: np.ndarray, *, extended: bool = False
+    problem: Reduced, ev: Evaluation, r: np.ndarray, *, extended: bool = False,
+    columns: np.ndarray | None = None,
 ) -> np.ndarray:
-    """``c(x) - 1`` for every phenotype, without the cancellation of forming ``c`` first.
+    """``c(x) - 1`` for the phenotypes in ``columns`` (default all, which must include every
+    phenotype in use), without the cancellation of forming ``c`` first.
 
     ``c(x) - 1 = sum_y p(y) (e(y,x) - z(y)) / z(y)`` with ``e = exp(beta gaps)`` and
     ``z = e @ r``, for the marginal ``r / sum(r)`` (a rounding error in ``sum r`` would
@@ -215,12 +217,14 @@ def kkt_residual(
     """
     dtype = np.longdouble if extended else np.float64
     rows = ~ev.low
+    columns = np.arange(r.size) if columns is None else columns
+    gaps = problem.gaps[np.ix_(rows, columns)]
     if extended:
-        exponent = dtype(problem.beta) * problem.gaps[rows].astype(dtype)
+        exponent = dtype(problem.beta) * gaps.astype(dtype)
         m, e = np.expm1(exponent), np.exp(exponent)
     else:
-        m, e = problem.expm1_gaps[rows], problem.expo[rows]
-    r_ext = r.astype(dtype)
+        m, e = np.expm1(problem.beta * gaps), problem.expo[np.ix_(rows, columns)]
+    r_ext = r[columns].astype(dtype)
     total = r_ext.sum()
     z = e @ r_ext
     near = z >= 0.5
@@ -229,16 +233,16 @@ def kkt_residual(
     scaled = numerator / z[:, None]
     residual = problem.p[rows].astype(dtype) @ scaled
     if ev.low.any():
-        residual = residual + problem.p[ev.low] @ (ev.ratio[ev.low] - 1.0)
+        residual = residual + problem.p[ev.low] @ (ev.ratio[ev.low][:, columns] - 1.0)
     return np.asarray(residual, dtype=np.float64)
 
 
 def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended: bool = False):
     """The support and the Newton correction of its masses (accurate residual)."""
-    residual = kkt_residual(problem, ev, r, extended=extended)
     support = index[r[index] > 0]
+    residual = kkt_residual(problem, ev, r, extended=extended, columns=support)
     ratio = np.minimum(ev.ratio[:, support], _RATIO_CAP)
-    return support, _support_newton_step(problem, ratio, r[support], residual[support])
+    return support, _support_newton_step(problem, ratio, r[support], residual)
 
 
 def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarray:

@@ -76,11 +76,6 @@ class Reduced:
     def build(cls, payoff: np.ndarray, env: np.ndarray, beta: float) -> "Reduced":
         return Gaps.build(payoff, env).at(beta)
 
-    @cached_property
-    def expm1_gaps(self) -> np.ndarray:
-        """``exp(beta * gaps) - 1`` without cancellation (for Kuhn–Tucker residuals)."""
-        return np.expm1(self.beta * self.gaps)
-
     @property
     def n_phenotypes(self) -> int:
         return self.expo.shape[1]
