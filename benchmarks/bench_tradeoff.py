@@ -581,6 +581,8 @@ def streaming_passes(seed: np.random.SeedSequence, sizes: Sizes) -> None:
         print(f"   {m:<12.0e}{format_seconds(unit):>10}"
               + "".join(f"{c / unit:>10.1f}x" if i != 1 else f"{c / unit:>10.1f}x "
                         for i, c in enumerate(cells)))
+    print("   (curve it. = whole tradeoff() time, transitions located included, per Newton "
+          "iteration of its grid points)")
 
 
 def cold_solves(seed: np.random.SeedSequence) -> None:

@@ -146,17 +146,28 @@ def _enter(problem: Reduced, r: np.ndarray, ev: Evaluation, x: int) -> np.ndarra
     return trial / trial.sum()
 
 
-def _support_newton_step(problem: Reduced, ratio: np.ndarray, r: np.ndarray, c: np.ndarray):
+def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
+    """``H(x, x') = sum_y p(y) ratio(y,x) ratio(y,x')`` (the Hessian of ``F`` in ``r``): one
+    temporary of the ratio's size and one matrix product."""
+    return ratio.T @ (ratio * problem.p[:, None])
+
+
+def _support_newton_step(
+    problem: Reduced, ratio: np.ndarray | None, r: np.ndarray, c: np.ndarray,
+    hessian: np.ndarray | None = None,
+):
     """Newton step on a fixed support, keeping ``sum r = 1``, in scaled variables ``d = r y``.
 
-    The scaled Hessian ``sum_y p(y) q(x|y) q(x'|y)`` stays well conditioned when the marginal
-    spans many orders of magnitude, so this is the accurate step once the support is settled.
+    The scaled Hessian ``sum_y p(y) q(x|y) q(x'|y) = r(x) H(x,x') r(x')`` stays well conditioned
+    when the marginal spans many orders of magnitude, so this is the accurate step once the
+    support is settled. ``hessian`` is ``H`` on the support when the caller already has it
+    (then ``ratio`` is not read).
     """
-    weights = ratio * r[None, :]
-    hessian = (weights * problem.p[:, None]).T @ weights
+    if hessian is None:
+        hessian = hessian_of(problem, ratio)
     k = r.size
     system = np.zeros((k + 1, k + 1))
-    system[:k, :k] = hessian
+    system[:k, :k] = r[:, None] * hessian * r[None, :]
     system[:k, k] = r
     system[k, :k] = r
     rhs = np.zeros(k + 1)
@@ -170,28 +181,41 @@ def _support_newton_step(problem: Reduced, ratio: np.ndarray, r: np.ndarray, c: 
     return r * scaled
 
 
+def _capped_ratio(ev: Evaluation, index: np.ndarray) -> np.ndarray:
+    """``exp(beta u) / Z`` on the columns in ``index``, capped at 1e100 (no overflow in ``H``);
+    no copy when every column is used and nothing needs capping."""
+    ratio = ev.ratio if index.size == ev.ratio.shape[1] else ev.ratio[:, index]
+    if ratio.max() > _RATIO_CAP:
+        ratio = np.minimum(ratio, _RATIO_CAP)
+    return ratio
+
+
 def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, tol: float):
     """The step for the phenotypes in ``index``: Newton on the support when it is settled,
-    otherwise the minimiser of the quadratic model over the simplex."""
+    otherwise the minimiser of the quadratic model over the simplex.
+
+    The Hessian over ``index`` is formed once (one pass over the states) and serves both.
+    """
     support = r > 0
-    ratio = np.minimum(ev.ratio[:, index], _RATIO_CAP)
+    hessian = hessian_of(problem, _capped_ratio(ev, index))
     c = ev.c[index]
     # c - 1 instead of c on the right-hand side: the constant only shifts the multiplier of
     # sum r = 1, and near the optimum it would swamp the differences that set the step.
     excess = c - 1.0
+    on_support = hessian[np.ix_(support, support)]
     if not (c[~support] > 1.0 + tol).any():
-        step = _support_newton_step(problem, ratio[:, support], r[support], excess[support])
+        step = _support_newton_step(problem, None, r[support], excess[support], on_support)
         if (r[support] + step >= 0).all():
             direction = np.zeros(index.size)
             direction[support] = step
             return direction
-    hessian = (ratio * problem.p[:, None]).T @ ratio
-    hessian[np.diag_indices_from(hessian)] += _RIDGE * np.trace(hessian) / index.size
-    w = simplex_qp(hessian, -c - hessian @ r)
+    model = hessian.copy()
+    model[np.diag_indices_from(model)] += _RIDGE * np.trace(model) / index.size
+    w = simplex_qp(model, -c - model @ r)
     if np.array_equal(w > 0, support):
         direction = np.zeros(index.size)
         direction[support] = _support_newton_step(
-            problem, ratio[:, support], r[support], excess[support]
+            problem, None, r[support], excess[support], on_support
         )
         return direction
     return w - r
@@ -241,7 +265,7 @@ def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended
     """The support and the Newton correction of its masses (accurate residual)."""
     support = index[r[index] > 0]
     residual = kkt_residual(problem, ev, r, extended=extended, columns=support)
-    ratio = np.minimum(ev.ratio[:, support], _RATIO_CAP)
+    ratio = _capped_ratio(ev, support)
     return support, _support_newton_step(problem, ratio, r[support], residual)
 
 
