@@ -546,6 +546,76 @@ def bandwidth_floor(
         print(f"   {label:<44}{format_seconds(seconds):>10}  {note}")
 
 
+def streaming_pass_seconds(m: int, n: int, repeats: int) -> float:
+    """Median time of one streaming pass: ``(a * b).sum()`` over two ``m x n`` float64 arrays
+    (the unit of issue 13's targets, measured in the same run)."""
+    rng = np.random.default_rng(0)
+    a, b = rng.random((m, n)), rng.random((m, n))
+    seconds, _ = median_seconds(lambda: (a * b).sum(), repeats)
+    return seconds
+
+
+def streaming_passes(seed: np.random.SeedSequence, sizes: Sizes) -> None:
+    """Section 5: costs in streaming passes at 1e4 and 1e5 states x 8 phenotypes (issue 13:
+    <= 3 per evaluation of F and its gradient, <= 10 per Newton iteration of a curve)."""
+    rng = np.random.default_rng(seed)
+    print("5. Streaming passes (1 pass = '(a * b).sum()' over states x phenotypes float64, "
+          f"medians of {sizes.bandwidth_repeats})")
+    print(f"   {'states x 8':<12}{'pass':>10}{'F,c eval':>10}{'build exp':>11}"
+          f"{'Newton it.':>12}{'cold solve':>12}{'curve it.':>11}   targets: eval <= 3, curve it. <= 10")
+    for m in (10_000, 100_000):
+        payoff, env = random_problem(m, 8, rng)
+        beta = 3.0 * switchlaw.first_critical_beta(payoff, env) + 0.5
+        unit = streaming_pass_seconds(m, 8, sizes.bandwidth_repeats)
+        build, problem = median_seconds(lambda: Reduced.build(payoff, env, beta), 5)
+        uniform = np.full(8, 1.0 / 8)
+        newton, record = median_seconds(lambda: newton_marginal(problem, uniform), 3)
+        per_iteration = newton / max(record.iterations, 1)
+        evaluation, _ = median_seconds(lambda: evaluate(problem, record.marginal),
+                                       sizes.bandwidth_repeats)
+        cold, _ = median_seconds(lambda: switchlaw.solve(payoff, env, beta), 3)
+        betas = np.geomspace(1e-2, 30, 10)
+        curve_seconds, curve = median_seconds(lambda: switchlaw.tradeoff(payoff, env, betas), 1)
+        curve_iteration = curve_seconds / max(int(curve.iterations.sum()), 1)
+        cells = [evaluation, build, per_iteration, cold, curve_iteration]
+        print(f"   {m:<12.0e}{format_seconds(unit):>10}"
+              + "".join(f"{c / unit:>10.1f}x" if i != 1 else f"{c / unit:>10.1f}x "
+                        for i, c in enumerate(cells)))
+    print("   (curve it. = whole tradeoff() time, transitions located included, per Newton "
+          "iteration of its grid points)")
+
+
+def cold_solves(seed: np.random.SeedSequence) -> None:
+    """Section 6: the public ``solve`` called cold at 100 x 4 (issue 13 target: < 1 ms)."""
+    rng = np.random.default_rng(seed)
+    problems = [random_problem(100, 4, rng) for _ in range(50)]
+    betas = [3.0 * switchlaw.first_critical_beta(u, p) + 0.5 for u, p in problems]
+    per_call = []
+    for (u, p), beta in zip(problems, betas):
+        seconds, _ = median_seconds(lambda: switchlaw.solve(u, p, beta), 5)
+        per_call.append(seconds)
+    median = float(np.median(per_call))
+    print(f"6. Cold public solve at 100 x 4, 50 random problems: median "
+          f"{format_seconds(median)} per call, 90th percentile "
+          f"{format_seconds(float(np.quantile(per_call, 0.9)))}; target < 1 ms: "
+          f"{verdict(median < 1e-3)}")
+
+
+def cvxpy_large(seed: np.random.SeedSequence, points: int) -> None:
+    """Section 7: the cvxpy ratio at 1000 x 8 (issue 13), Clarabel defaults, a few betas."""
+    rng = np.random.default_rng(seed)
+    payoff, env = random_problem(1000, 8, rng)
+    betas = np.geomspace(0.1, 30, 100)
+    sl_seconds, curve = median_seconds(lambda: switchlaw.tradeoff(payoff, env, betas), 3)
+    program = build_conic_program(payoff, env)
+    subset = betas[np.linspace(0, betas.size - 1, points).astype(int)]
+    seconds = [solve_conic(program, float(b), CLARABEL_DEFAULTS, 1)[0] for b in subset]
+    ratio = float(np.mean(seconds)) / (sl_seconds / betas.size)
+    print(f"7. 1000 x 8, 100 betas: switchlaw {format_seconds(sl_seconds / betas.size)} per "
+          f"point, cvxpy/Clarabel (defaults) {format_seconds(float(np.mean(seconds)))} per point "
+          f"({points} betas): RATIO {ratio:.0f}x")
+
+
 # --------------------------------------------------------------------------- entry point
 
 
@@ -578,6 +648,13 @@ def main(argv=None) -> int:
     iterations_near_transitions(seeds[2], sizes)
     print()
     bandwidth_floor(payoff, env, beta, per_iteration, sizes.bandwidth_repeats)
+    print()
+    extra = np.random.SeedSequence(args.seed + 1).spawn(3)
+    streaming_passes(extra[0], sizes)
+    print()
+    cold_solves(extra[1])
+    print()
+    cvxpy_large(extra[2], 2 if args.quick else 4)
     print()
     print(f"total benchmark time {format_seconds(time.perf_counter() - start)}; "
           f"targets (accuracy and >= {SPEEDUP_TARGET:.0f}x): {verdict(passed)}")

@@ -17,7 +17,7 @@ from scipy.optimize import brentq
 from .._errors import InfeasibleError, InputError
 from .._validate import as_array, as_distribution, as_nonnegative, choice
 from ..information._measures import NATS_PER_BIT
-from ._minimum_information import first_critical_beta_of, policy_for_marginal
+from ._minimum_information import Prepared, first_critical_beta_of, policy_for_marginal
 from ._results import Policy
 from ._solve import check_problem, make_policy, solve_checked
 
@@ -85,8 +85,11 @@ def solve_budget(
     constraints : sequence of LinearConstraint, optional
         Further linear conditions on the joint distribution.
     method : {"conic", "bisection"}
-        ``"conic"`` solves the exponential-cone program with cvxpy; ``"bisection"`` finds the
-        beta whose min-information solution uses exactly ``bits`` (no extra constraints).
+        With the budget alone both find the beta whose min-information solution uses
+        exactly ``bits`` on the exact curve (Brent's method on ``I(beta)``), so the answer
+        never uses more than ``bits`` and never earns less than ``max_x E[u(Y, x)]``. With
+        ``phenotype_fractions`` or ``constraints``, ``"conic"`` solves the exponential-cone
+        program with cvxpy (its own absolute tolerances apply); ``"bisection"`` refuses them.
     solver : str
         cvxpy solver with exponential cones (default Clarabel).
 
@@ -104,10 +107,16 @@ def solve_budget(
     """
     u, p = check_problem(payoff, env)
     choice(method, "method", BUDGET_METHODS)
+    if isinstance(bits, (str, bytes, bool, np.bool_)):
+        raise InputError(f"`bits` must be a real number (got {bits!r})")
     try:
-        budget = as_nonnegative(bits, "bits")
-    except InputError as error:
-        raise InfeasibleError(str(error)) from None
+        budget = float(bits)
+    except (TypeError, ValueError):
+        raise InputError(f"`bits` must be a real number (got {bits!r})") from None
+    if not math.isfinite(budget):
+        raise InputError(f"`bits` must be finite (got {budget!r})")
+    if budget < 0:
+        raise InfeasibleError(f"`bits` must be >= 0: no policy uses negative information (got {budget!r})")
     top = max_information_bits(p, u.shape[1])
     if budget > top + 1e-12:
         raise InfeasibleError(
@@ -123,17 +132,15 @@ def solve_budget(
                 f"(got {fractions.size})"
             )
     extra = _check_constraints(constraints, u.shape)
-    if method == "bisection":
-        if fractions is not None or extra:
-            raise InputError(
-                "`method='bisection'` handles the budget alone; use method='conic' with "
-                "`phenotype_fractions` or `constraints`"
-            )
-        return budget_policy(u, p, budget)
+    if method == "bisection" and (fractions is not None or extra):
+        raise InputError(
+            "`method='bisection'` handles the budget alone; use method='conic' with "
+            "`phenotype_fractions` or `constraints`"
+        )
     if fractions is None and not extra:
-        greedy = _greedy(u, p)
-        if budget >= greedy.information_bits - 1e-12:
-            return greedy
+        # The budget alone: the exact curve I(beta) decides, whatever the method (a conic
+        # solve is only as good as its absolute tolerances, which overspend small budgets).
+        return budget_policy(u, p, budget)
     return _conic(u, p, budget, fractions, extra, solver)
 
 
@@ -158,11 +165,16 @@ def _greedy(u: np.ndarray, p: np.ndarray) -> Policy:
 
 
 def _bisection(u: np.ndarray, p: np.ndarray, budget: float) -> Policy:
-    """Beta whose min-information solution has ``I = budget`` (I is increasing in beta).
+    """The min-information policy whose ``I(X;Y)`` is ``budget`` bits, never more.
 
-    Below the first critical beta ``I = 0``, so the search starts there.
+    ``I(beta)`` is non-decreasing (the slope of the curve is ``beta``, Cover & Thomas 2006
+    §10.4) and zero up to the first critical beta ``beta_c``, so Brent's method on
+    ``I(beta) - budget`` over ``[beta_c, beta_hi]`` finds the multiplier; each evaluation is a
+    certified solve warm-started from the last. The answer is then moved down (never up) until
+    it does not overspend. A budget of 0 is the zero-information policy, exactly.
     """
-    first = first_critical_beta_of(u, p)
+    prepared = Prepared.build(u, p)
+    first = first_critical_beta_of(prepared.distinct, p)
     if not math.isfinite(first):
         # One phenotype is best in every state: it uses no information and no budget binds.
         policy = solve_checked(u, p, 0.0)
@@ -173,25 +185,35 @@ def _bisection(u: np.ndarray, p: np.ndarray, budget: float) -> Policy:
             method="closed-form",
         )
     if budget == 0:
-        return solve_checked(u, p, first)
+        return solve_checked(u, p, first, prepared=prepared)
+    starts = {}
+    under = {first: None}  # betas known not to overspend, with their policies
 
-    def excess(log_beta):
-        return solve_checked(u, p, math.exp(log_beta)).information_bits - budget
+    def excess(beta: float) -> float:
+        policy = solve_checked(u, p, beta, start=starts.get("r"), prepared=prepared)
+        if policy.status == "converged":
+            starts["r"] = policy.marginal
+        if policy.information_bits <= budget:
+            under[beta] = policy
+        return policy.information_bits - budget
 
-    lo = math.log(first) if first > 0 else -50.0
-    hi = lo + 1.0
+    lo = first
+    hi = 2.0 * first if first > 0 else 1.0
     while excess(hi) < 0:
-        lo, hi = hi, hi + 2.0
-        if hi > 60:
+        lo, hi = hi, 2.0 * hi
+        if hi > 1e300:
             raise InfeasibleError(
-                f"no beta up to e^60 reaches `bits` = {budget!r}; the budget is nearly slack"
+                f"no finite beta reaches `bits` = {budget!r}; the budget is nearly slack"
             )
-    log_beta = brentq(excess, lo, hi, xtol=1e-13, rtol=1e-14)
-    policy = solve_checked(u, p, math.exp(log_beta))
+    brentq(excess, lo, hi, xtol=1e-300, rtol=4 * np.finfo(float).eps, maxiter=500)
+    # The largest beta seen that does not overspend: Brent's bracket closes on the root from
+    # both sides, so it is within the bracket's relative width of the multiplier.
+    beta = max(under)
+    policy = under[beta] if under[beta] is not None else solve_checked(u, p, beta, prepared=prepared)
     return make_policy(
         u, p, policy.probs, beta=policy.beta, objective="min-information",
         converged=policy.converged, iterations=policy.iterations, status=policy.status,
-        message=f"beta found by bracketing I(beta) = {budget:.6g} bits",
+        message=f"beta found by Brent's method on the exact curve I(beta) = {budget:.6g} bits",
         gap_nats=policy.gap_nats, method="bisection",
     )
 

@@ -8,7 +8,15 @@ with exact zeros), then backtracks along the step. The same scheme is used for m
 likelihood mixture weights (Kim, Carbonetto, Stephens & Anitescu 2020, J. Comput. Graph.
 Stat. 29:261); here the outer iterations converge quadratically near the optimum.
 
-The stopping rule is the certified bound ``F(r) - min F <= log max_x c(x)`` (Blahut 1972).
+Stopping rule. The bound ``F(r) - min F <= log max_x c(x)`` (Blahut 1972) certifies the
+objective, not the policy: just past a critical beta ``F`` is nearly flat in the entering
+phenotype's mass, so a gap of 1e-12 nats allows that mass to be many times too large. The solve
+therefore ends with Newton steps on the settled support whose right-hand side is the
+Kuhn–Tucker residual ``c(x) - 1`` computed without cancellation (``expm1`` of the payoff gaps),
+and reports convergence only once the Newton correction of every marginal mass in use is below
+:data:`POLICY_RTOL` relative (Newton's method converges quadratically, so the correction bounds
+the remaining error to first order; Nocedal & Wright 2006, Thm. 3.5), or has reached the
+rounding level of float64 (at most :data:`NOISE_RTOL` relative).
 """
 
 from __future__ import annotations
@@ -32,6 +40,16 @@ _RATIO_CAP = 1e100
 _FAR = 2.0
 #: Relative ridge added to the model Hessian (it is singular along tied phenotypes).
 _RIDGE = 1e-12
+#: A policy is certified once the Newton correction of every marginal mass in use is below
+#: this, relative to the mass.
+POLICY_RTOL = 1e-10
+#: ... or, when rounding stops the corrections from shrinking (entering masses below about
+#: 1e-6), once they are below this.
+NOISE_RTOL = 1e-9
+#: Marginal masses below this are finished with the residual in extended precision.
+_SMALL_MASS = 1e-3
+#: Newton corrections tried at most once the objective gap is below tolerance.
+_FINISH_STEPS = 12
 
 
 @dataclass(frozen=True)
@@ -43,6 +61,9 @@ class MarginalResult:
     iterations: int
     converged: bool
     message: str
+    #: True when the objective is certified but the policy is not (float64 rounding or the
+    #: iteration limit on a nearly flat objective): Blahut–Arimoto cannot do better.
+    policy_uncertified: bool = False
 
 
 def _gap(c: np.ndarray, allowed: np.ndarray) -> float:
@@ -125,17 +146,28 @@ def _enter(problem: Reduced, r: np.ndarray, ev: Evaluation, x: int) -> np.ndarra
     return trial / trial.sum()
 
 
-def _support_newton_step(problem: Reduced, ratio: np.ndarray, r: np.ndarray, c: np.ndarray):
+def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
+    """``H(x, x') = sum_y p(y) ratio(y,x) ratio(y,x')`` (the Hessian of ``F`` in ``r``): one
+    temporary of the ratio's size and one matrix product."""
+    return ratio.T @ (ratio * problem.p[:, None])
+
+
+def _support_newton_step(
+    problem: Reduced, ratio: np.ndarray | None, r: np.ndarray, c: np.ndarray,
+    hessian: np.ndarray | None = None,
+):
     """Newton step on a fixed support, keeping ``sum r = 1``, in scaled variables ``d = r y``.
 
-    The scaled Hessian ``sum_y p(y) q(x|y) q(x'|y)`` stays well conditioned when the marginal
-    spans many orders of magnitude, so this is the accurate step once the support is settled.
+    The scaled Hessian ``sum_y p(y) q(x|y) q(x'|y) = r(x) H(x,x') r(x')`` stays well conditioned
+    when the marginal spans many orders of magnitude, so this is the accurate step once the
+    support is settled. ``hessian`` is ``H`` on the support when the caller already has it
+    (then ``ratio`` is not read).
     """
-    weights = ratio * r[None, :]
-    hessian = (weights * problem.p[:, None]).T @ weights
+    if hessian is None:
+        hessian = hessian_of(problem, ratio)
     k = r.size
     system = np.zeros((k + 1, k + 1))
-    system[:k, :k] = hessian
+    system[:k, :k] = r[:, None] * hessian * r[None, :]
     system[:k, k] = r
     system[k, :k] = r
     rhs = np.zeros(k + 1)
@@ -149,26 +181,152 @@ def _support_newton_step(problem: Reduced, ratio: np.ndarray, r: np.ndarray, c: 
     return r * scaled
 
 
+def _capped_ratio(ev: Evaluation, index: np.ndarray) -> np.ndarray:
+    """``exp(beta u) / Z`` on the columns in ``index``, capped at 1e100 (no overflow in ``H``);
+    no copy when every column is used and nothing needs capping."""
+    ratio = ev.ratio if index.size == ev.ratio.shape[1] else ev.ratio[:, index]
+    if ratio.max() > _RATIO_CAP:
+        ratio = np.minimum(ratio, _RATIO_CAP)
+    return ratio
+
+
 def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, tol: float):
     """The step for the phenotypes in ``index``: Newton on the support when it is settled,
-    otherwise the minimiser of the quadratic model over the simplex."""
+    otherwise the minimiser of the quadratic model over the simplex.
+
+    The Hessian over ``index`` is formed once (one pass over the states) and serves both.
+    """
     support = r > 0
-    ratio = np.minimum(ev.ratio[:, index], _RATIO_CAP)
+    hessian = hessian_of(problem, _capped_ratio(ev, index))
     c = ev.c[index]
+    # c - 1 instead of c on the right-hand side: the constant only shifts the multiplier of
+    # sum r = 1, and near the optimum it would swamp the differences that set the step.
+    excess = c - 1.0
+    on_support = hessian[np.ix_(support, support)]
     if not (c[~support] > 1.0 + tol).any():
-        step = _support_newton_step(problem, ratio[:, support], r[support], c[support])
+        step = _support_newton_step(problem, None, r[support], excess[support], on_support)
         if (r[support] + step >= 0).all():
             direction = np.zeros(index.size)
             direction[support] = step
             return direction
-    hessian = (ratio * problem.p[:, None]).T @ ratio
-    hessian[np.diag_indices_from(hessian)] += _RIDGE * np.trace(hessian) / index.size
-    w = simplex_qp(hessian, -c - hessian @ r)
+    model = hessian.copy()
+    model[np.diag_indices_from(model)] += _RIDGE * np.trace(model) / index.size
+    w = simplex_qp(model, -c - model @ r)
     if np.array_equal(w > 0, support):
         direction = np.zeros(index.size)
-        direction[support] = _support_newton_step(problem, ratio[:, support], r[support], c[support])
+        direction[support] = _support_newton_step(
+            problem, None, r[support], excess[support], on_support
+        )
         return direction
     return w - r
+
+
+def kkt_residual(
+    problem: Reduced, ev: Evaluation, r: np.ndarray, *, extended: bool = False,
+    columns: np.ndarray | None = None,
+) -> np.ndarray:
+    """``c(x) - 1`` for the phenotypes in ``columns`` (default all, which must include every
+    phenotype in use), without the cancellation of forming ``c`` first.
+
+    ``c(x) - 1 = sum_y p(y) (e(y,x) - z(y)) / z(y)`` with ``e = exp(beta gaps)`` and
+    ``z = e @ r``, for the marginal ``r / sum(r)`` (a rounding error in ``sum r`` would
+    otherwise shift every residual by it). Where ``z(y)`` is near one both terms are near
+    one, so the numerator is formed as ``S expm1(beta gaps(y,x)) - expm1(beta gaps) @ r`` with
+    ``S = sum r``; elsewhere as ``S e - z``. Rows in log domain use ``exp(beta u) / Z - 1``.
+
+    ``extended=True`` evaluates the residual in the platform's extended precision
+    (``np.longdouble``; iterative refinement with a more precise residual, Higham 2002,
+    ch. 12): next to a transition the residual is a sum of terms that cancel to eight or more
+    digits, and in float64 its rounding then dominates the entering mass.
+    """
+    dtype = np.longdouble if extended else np.float64
+    rows = ~ev.low
+    columns = np.arange(r.size) if columns is None else columns
+    gaps = problem.gaps[np.ix_(rows, columns)]
+    if extended:
+        exponent = dtype(problem.beta) * gaps.astype(dtype)
+        m, e = np.expm1(exponent), np.exp(exponent)
+    else:
+        m, e = np.expm1(problem.beta * gaps), problem.expo[np.ix_(rows, columns)]
+    r_ext = r[columns].astype(dtype)
+    total = r_ext.sum()
+    z = e @ r_ext
+    near = z >= 0.5
+    numerator = total * e - z[:, None]
+    numerator[near] = total * m[near] - (m[near] @ r_ext)[:, None]
+    scaled = numerator / z[:, None]
+    residual = problem.p[rows].astype(dtype) @ scaled
+    if ev.low.any():
+        residual = residual + problem.p[ev.low] @ (ev.ratio[ev.low][:, columns] - 1.0)
+    return np.asarray(residual, dtype=np.float64)
+
+
+def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended: bool = False):
+    """The support and the Newton correction of its masses (accurate residual)."""
+    support = index[r[index] > 0]
+    residual = kkt_residual(problem, ev, r, extended=extended, columns=support)
+    ratio = _capped_ratio(ev, support)
+    return support, _support_newton_step(problem, ratio, r[support], residual)
+
+
+def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarray:
+    """Phenotypes in use that a Newton correction would drive to zero or below."""
+    support, step = _correction(problem, ev, r, index)
+    return support[r[support] + step <= 0]
+
+
+def _finish_step(
+    problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, extended: bool
+):
+    """Newton correction on the support with the accurate residual.
+
+    Returns ``(new r, relative size of the correction)``, or ``None`` when the correction
+    would drive a phenotype in use to zero or below (the support is not settled to the
+    policy tolerance; phenotypes outside already have ``c(x) <= e^tol`` from the gap test).
+    """
+    support, step = _correction(problem, ev, r, index, extended)
+    if not np.isfinite(step).all() or (r[support] + step <= 0).any():
+        return None
+    trial = r.copy()
+    trial[support] += step
+    size = float(np.max(np.abs(step) / r[support]))
+    return trial / trial.sum(), size
+
+
+def finish(problem: Reduced, ev: Evaluation, r: np.ndarray, index, allowed, tol: float):
+    """Newton finish from a marginal whose objective gap is below ``tol``.
+
+    Returns ``(r, ev, gap, size, certified)``: the last marginal whose gap is still below
+    ``tol``, and the relative size of the last Newton correction (an estimate of the
+    remaining relative error of every mass in use, Newton's method converging quadratically).
+    """
+    gap = _gap(ev.c, allowed)
+    previous = np.inf
+    # A mass below _SMALL_MASS is set by a residual that cancels to as many digits: float64
+    # rounding of the residual alone would move it by more than the tolerance.
+    extended = bool(r[index][r[index] > 0].min() < _SMALL_MASS)
+    size = np.inf
+    for _ in range(_FINISH_STEPS):
+        finish = _finish_step(problem, ev, r, index, extended)
+        if finish is None:
+            return r, ev, gap, np.inf, False
+        trial, size = finish
+        if size <= POLICY_RTOL:
+            return r, ev, gap, size, True
+        if size > 0.25 * previous:  # the corrections stopped shrinking: rounding level
+            if size <= NOISE_RTOL:
+                return r, ev, gap, size, True
+            if extended:
+                return r, ev, gap, size, False
+            extended, previous = True, np.inf
+            continue
+        trial_ev = evaluate(problem, trial)
+        trial_gap = _gap(trial_ev.c, allowed)
+        if trial_gap > tol:
+            return r, ev, gap, size, False
+        previous = size
+        r, ev, gap = trial, trial_ev, trial_gap
+    return r, ev, gap, size, False
 
 
 def newton_marginal(
@@ -199,7 +357,22 @@ def newton_marginal(
     iteration = 0
     for iteration in range(1, max_iter + 1):
         if gap <= tol:
-            return MarginalResult(r, gap, iteration - 1, True, "certified gap below tolerance")
+            r, ev, gap, size, certified = finish(problem, ev, r, index, allowed, tol)
+            if certified:
+                return MarginalResult(
+                    r, gap, iteration - 1, True,
+                    f"certified gap below tolerance; Newton correction {size:.2g} relative",
+                )
+            why = (
+                f"the policy is resolved only to {size:.2g} relative"
+                if np.isfinite(size)
+                else "a Newton correction would empty a phenotype in use"
+            )
+            return MarginalResult(
+                r, gap, iteration - 1, False,
+                f"certified gap {gap:.2g} nats, but {why} (nearly flat objective)",
+                policy_uncertified=True,
+            )
         unused = index[r[index] == 0]
         if unused.size and ev.c[unused].max() > _FAR:
             entered = _enter(problem, r, ev, int(unused[np.argmax(ev.c[unused])]))
@@ -209,8 +382,8 @@ def newton_marginal(
                 gap = _gap(ev.c, allowed)
                 continue
         direction = _direction(problem, ev, r[index], index, tol)
-        gradient = -ev.c[index]
-        decrease = -float(gradient @ direction)
+        # The gradient is -c; along a direction with sum zero only c - 1 counts (no cancellation).
+        decrease = float((ev.c[index] - 1.0) @ direction)
         # Below float resolution the sign of the predicted decrease is noise: take the step.
         unresolved = abs(decrease) < _FLOOR * (1.0 + abs(ev.objective))
         if not (decrease > 0 or unresolved) or not np.any(direction):
@@ -230,8 +403,6 @@ def newton_marginal(
         r = accepted
         ev = evaluate(problem, r)
         gap = _gap(ev.c, allowed)
-    if gap <= tol:
-        return MarginalResult(r, gap, iteration, True, "certified gap below tolerance")
     return MarginalResult(
         r, gap, iteration, False, f"Newton stopped with certified gap {gap:.3g} nats"
     )

@@ -12,6 +12,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from ._blahut_arimoto import blahut_arimoto_marginal
+from ._inputs import check_problem
 from ._marginal_newton import MarginalResult, newton_marginal
 from ._problem import Gaps, policy_from_marginal
 
@@ -105,8 +106,6 @@ def first_critical_beta(payoff, env) -> float:
     >>> round(first_critical_beta([[0.0, -1.0], [-1.0, 0.0]], [0.8, 0.2]), 10)
     1.3862943611
     """
-    from ._solve import check_problem
-
     u, p = check_problem(payoff, env)  # a receptor turns the payoff into E[u | sensed state]
     if u.shape[1] == 1:
         return float("inf")
@@ -185,8 +184,8 @@ def solve_marginal(
 def _newton_with_fallback(problem, start, *, allowed, tol, max_iter) -> MarginalResult:
     """Newton on the marginal; should it stall, Blahut–Arimoto finishes from where it stopped."""
     result = newton_marginal(problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500)
-    if result.converged:
-        return result
+    if result.converged or result.policy_uncertified:
+        return result  # Blahut–Arimoto cannot resolve what rounding hides from Newton
     fallback = blahut_arimoto_marginal(problem, result.marginal, allowed=allowed, tol=tol)
     return MarginalResult(
         fallback.marginal,

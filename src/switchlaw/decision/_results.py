@@ -112,7 +112,7 @@ class Tradeoff:
     converged : ndarray of bool, shape (k,)
     critical_betas : tuple of CriticalBeta
         In increasing order, every beta in ``[betas.min(), betas.max()]`` where the set of
-        phenotypes in use changes, each located to about 1e-10 in beta (transitions that both
+        phenotypes in use changes, each located to about 1e-12 relative in beta (transitions that both
         start and end between two neighbouring grid points are not seen).
     objective : str
     """

@@ -9,7 +9,7 @@ import numpy as np
 from .._jax import jax_float64
 from .._validate import as_positive
 from ..information._measures import NATS_PER_BIT
-from ._solve import check_problem, solve_checked
+from ._solve import as_beta, check_problem, solve_checked
 
 #: Marginal entries above this are treated as the support when differentiating.
 _SUPPORT = 1e-12
@@ -66,7 +66,7 @@ def sensitivity(payoff, env, beta) -> Sensitivity:
     Sensitivity
     """
     u, p = check_problem(payoff, env)
-    beta = as_positive(beta, "beta")
+    beta = as_positive(as_beta(beta), "beta")
     policy = solve_checked(u, p, beta)
     support = np.flatnonzero(policy.marginal > _SUPPORT)
     m, n = u.shape

@@ -2,29 +2,73 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 from scipy.special import entr
 
 from .._errors import InputError
-from .._validate import as_distribution, as_nonnegative, as_payoff, as_positive, choice
+from .._validate import as_distribution, as_positive, choice
 from ..information._measures import NATS_PER_BIT, _mutual_information_nats
+from ._inputs import as_beta, as_max_iter, check_problem
 from ._minimum_information import METHODS, minimum_information_marginal, policy_for_marginal
 from ._results import Policy
 
 
 
-def check_problem(payoff, env) -> tuple[np.ndarray, np.ndarray]:
-    """Validated ``(payoff[s, x], env[s])`` over the states the cell decides on.
+#: Taylor coefficients of ``((1 + x) log(1 + x) - x) / x^2 = sum_j (-1)^j x^j / ((j+1)(j+2))``;
+#: below ``|x| = 0.01`` ten terms reach float64 precision.
+_SERIES = np.array([(-1) ** j / ((j + 1) * (j + 2)) for j in range(10)])
 
-    An environment seen through a noisy receptor (an object with a ``channel``) takes the
-    payoff over its *true* states and turns it into the payoff expected given each sensed
-    state, ``E[u(Y, x) | S = s]``.
+
+def _excess_of_log(x: np.ndarray) -> np.ndarray:
+    """``(1 + x) log(1 + x) - x >= 0`` without cancellation (series below ``|x| = 0.01``)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = (1 + x) * np.log1p(x) - x
+    out[x <= -1] = 1.0  # (1 + x) log(1 + x) -> 0 as x -> -1
+    small = np.abs(x) < 0.01
+    if small.any():
+        xs = x[small]
+        series = np.full_like(xs, _SERIES[-1])
+        for coefficient in _SERIES[-2::-1]:
+            series = series * xs + coefficient
+        out[small] = series * xs * xs
+    return out
+
+
+def information_nats(env: np.ndarray, probs: np.ndarray) -> float:
+    """``I(X;Y) = sum_y p(y) sum_x r(x) phi(q(x|y) / r(x) - 1)``, ``phi(x) = (1+x) log(1+x) - x``.
+
+    Every term is non-negative, so a policy that barely depends on the state (a budget of
+    1e-12 bits) keeps its information to full relative precision; the textbook sum
+    ``q log(q / r)`` loses it to cancellation (Cover & Thomas 2006, eq. 2.28, rewritten with
+    ``sum_x (q - r) = 0``).
     """
-    probs = as_distribution(env, "env")
-    if getattr(env, "channel", None) is not None:
-        true_states = env.channel.shape[0]
-        return env.sensed_payoff(as_payoff(payoff, true_states)), probs
-    return as_payoff(payoff, probs.size), probs
+    keep = env > 0
+    p, q = env[keep], probs[keep]
+    r = p @ q
+    used = r > 0
+    if not used.any():
+        return 0.0
+    x = q[:, used] / r[used] - 1.0
+    terms = _excess_of_log(x) * r[used]
+    value = float(p @ terms.sum(axis=1))
+    if not np.isfinite(value):
+        return _mutual_information_nats(env, probs)
+    return max(value, 0.0)
+
+
+def expected_payoff(env: np.ndarray, probs: np.ndarray, payoff: np.ndarray) -> float:
+    """``E[u]`` as the zero-information payoff ``max_x E[u(Y, x)]`` plus the gain over it.
+
+    ``E[u] = E_0 + sum_y p(y) sum_x q(x|y) (u(y,x) - u(y,x*))`` with ``x*`` the best phenotype
+    on average (``sum_x q = 1``): a policy that barely departs from ``x*`` keeps its small
+    gain exactly instead of losing it in the rounding of ``E_0``.
+    """
+    means = env @ payoff
+    star = int(np.argmax(means))
+    gain = env @ (probs * (payoff - payoff[:, star : star + 1])).sum(axis=1)
+    return float(means[star] + gain)
 
 
 def make_policy(
@@ -47,9 +91,9 @@ def make_policy(
     return Policy(
         probs=probs,
         marginal=marginal,
-        information_bits=_mutual_information_nats(env, probs) / NATS_PER_BIT,
+        information_bits=information_nats(env, probs) / NATS_PER_BIT,
         conditional_entropy_bits=float(env @ entr(probs).sum(axis=1)) / NATS_PER_BIT,
-        expected_payoff=float(env @ (probs * payoff).sum(axis=1)),
+        expected_payoff=expected_payoff(env, probs, payoff),
         beta=beta,
         objective=objective,
         converged=converged,
@@ -106,15 +150,23 @@ def solve(
         Min-information algorithm: active-set Newton on the marginal (default; falls back to
         Blahut–Arimoto if it stalls) or plain Blahut–Arimoto alternation.
     tol : float
-        Certified tolerance on the objective, ``log max_x c(x) <= tol`` (nats).
+        Certified tolerance on the objective, ``log max_x c(x) <= tol`` (nats). On top of it,
+        ``status == "converged"`` certifies the policy: the Newton correction of every
+        marginal mass in use is below 1e-10 relative (1e-8 where float64 rounding stops it
+        shrinking), see :doc:`concepts`.
     max_iter : int, optional
-        Iteration limit (default 500 Newton steps, 100000 Blahut–Arimoto steps).
+        Iteration limit, >= 1 (default 500 Newton steps, 100000 Blahut–Arimoto steps).
     initial_marginal : array_like, optional
         Warm start for the min-information marginal.
 
     Returns
     -------
     Policy
+
+    Warns
+    -----
+    RuntimeWarning
+        ``method="blahut-arimoto"`` returned a policy it could not certify.
 
     Notes
     -----
@@ -139,8 +191,9 @@ def solve(
     0.880797
     """
     u, p = check_problem(payoff, env)
-    beta = as_nonnegative(beta, "beta")
+    beta = as_beta(beta)
     choice(objective, "objective", OBJECTIVES)
+    max_iter = as_max_iter(max_iter)
     return OBJECTIVES[objective](
         u, p, beta, reference=reference, method=method, tol=tol, max_iter=max_iter,
         initial_marginal=initial_marginal,
@@ -177,7 +230,14 @@ def _min_information(u, p, beta, *, reference, method, tol, max_iter, initial_ma
                 f"`initial_marginal` must have one entry per phenotype ({u.shape[1]}) "
                 f"(got {start.size})"
             )
-    return solve_checked(u, p, beta, method=method, start=start, tol=tol, max_iter=max_iter)
+    policy = solve_checked(u, p, beta, method=method, start=start, tol=tol, max_iter=max_iter)
+    if method == "blahut-arimoto" and policy.status == "not-converged":
+        warnings.warn(
+            f"Blahut–Arimoto did not certify the policy at beta={beta:.6g}: "
+            f"{policy.message}; method='newton' resolves it",
+            RuntimeWarning, stacklevel=3,
+        )
+    return policy
 
 
 #: ``objective=`` names and their solvers.

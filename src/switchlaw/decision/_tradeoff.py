@@ -19,8 +19,9 @@ from ._solve import OBJECTIVES, check_problem, solve, solve_checked
 
 #: Marginal entries below this count as "not in use" when comparing supports.
 SUPPORT_FLOOR = 1e-10
-#: Transitions are located to this absolute accuracy in beta (or better).
-BETA_XTOL = 1e-10
+#: Transitions are located to this relative accuracy in beta (payoffs in large units would
+#: lose every digit to an absolute tolerance).
+BETA_RTOL = 1e-12
 
 
 def _support(r: np.ndarray) -> frozenset:
@@ -65,7 +66,7 @@ class _Locator:
         if s_lo == s_hi:
             return []
         changed = s_lo ^ s_hi
-        if len(changed) == 1 and hi - lo > BETA_XTOL:
+        if len(changed) == 1 and hi - lo > BETA_RTOL * hi:
             (x,) = changed
             smaller = s_lo & s_hi
             start = r_lo if s_lo == smaller else r_hi
@@ -77,11 +78,11 @@ class _Locator:
                 if f_lo * f_hi < 0:
                     beta = brentq(
                         self.kkt_excess, a, hi, args=(smaller, x, start),
-                        xtol=BETA_XTOL, rtol=4 * np.finfo(float).eps,
+                        xtol=1e-300, rtol=BETA_RTOL,
                     )
                     # Trust the root only if it is the single change in the interval: the
                     # full solutions just either side must have the two end supports.
-                    step = 1e-7 * max(1.0, beta)
+                    step = 1e-7 * beta
                     if (
                         _support(self.full(max(beta - step, lo), r_lo)) == s_lo
                         and _support(self.full(min(beta + step, hi), r_hi)) == s_hi
@@ -89,7 +90,7 @@ class _Locator:
                         return [self._record(beta, s_lo, s_hi)]
             except (ValueError, FloatingPointError):
                 pass
-        if hi - lo <= BETA_XTOL * max(1.0, hi):
+        if hi - lo <= BETA_RTOL * hi:
             return [self._record(0.5 * (lo + hi), s_lo, s_hi)]
         mid = 0.5 * (lo + hi)
         r_mid = self.full(mid, r_lo)
@@ -124,7 +125,7 @@ def tradeoff(
     -------
     Tradeoff
         Arrays over ``betas`` (in the order given) and ``critical_betas``: every beta in the
-        scanned range where the set of phenotypes in use changes, located to 1e-10 in beta
+        scanned range where the set of phenotypes in use changes, located to 1e-12 relative in beta
         (Brent's method on the Kuhn–Tucker condition of the entering or leaving phenotype).
         The first one, where a second phenotype enters, comes from its closed form.
 
@@ -136,6 +137,11 @@ def tradeoff(
     """
     u, p = check_problem(payoff, env)
     choice(objective, "objective", OBJECTIVES)
+    if isinstance(betas, (str, bytes)) or np.asarray(betas).dtype.kind in "USObb":
+        if np.asarray(betas).dtype.kind != "O" or any(
+            isinstance(b, (str, bytes, bool)) for b in np.ravel(np.asarray(betas, dtype=object))
+        ):
+            raise InputError(f"`betas` must be real numbers (got {betas!r:.60})")
     grid = as_array(betas, "betas", ndim=1)
     if (grid < 0).any():
         raise InputError(f"`betas` must be >= 0 (got minimum {float(grid.min())!r})")
@@ -193,7 +199,7 @@ def _critical_betas(prepared: Prepared, p, grid, sorted_policies) -> tuple:
     exact = [False] * len(found)
     if found and first > 0:
         nearest = int(np.argmin([abs(f[0] - first) for f in found]))
-        if abs(found[nearest][0] - first) <= 1e-6 * max(1.0, first):
+        if abs(found[nearest][0] - first) <= 1e-6 * first:
             found[nearest] = (first,) + found[nearest][1:]
             exact[nearest] = True
     groups = [np.flatnonzero(inverse == g) for g in range(distinct.shape[1])]
