@@ -257,48 +257,74 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
     return problems
 
 
+#: Densities at which ``check`` builds the environment (all of the grid up to this many).
+TRIAL_DENSITIES = 1_001
+
+
 def _trial(study: Study) -> list[tuple[str, str, object]]:
-    """Build the environment and evaluate every payoff at a few densities of the grid.
+    """Build the environment and evaluate every payoff on the density grid.
 
     Problems that only show when numbers are computed (a payoff that overflows or divides by
-    zero, distribution parameters scipy refuses, bins that miss the support) are reported
-    here with their key, so ``check`` finds them before ``run`` does.
+    zero, distribution parameters scipy refuses, bins that miss the support, a budget beyond
+    what the states allow) are reported here with their key, so ``check`` finds them before
+    ``run`` does. Payoffs are evaluated at every density of the grid and at the reference
+    density; the environment at every density up to :data:`TRIAL_DENSITIES` (evenly spread
+    beyond that).
     """
     from .._errors import InputError
+    from ..decision._budget import max_information_bits
 
     grid = study.decision.densities.values()
-    densities = sorted({float(grid[0]), float(grid[len(grid) // 2]), float(grid[-1])})
+    pick = np.unique(np.linspace(0, grid.size - 1, min(grid.size, TRIAL_DENSITIES)).round().astype(int))
+    densities = list(grid[pick]) + [study.decision.reference_density]
     environment = environment_function(study)
     problems = []
+    largest_top, where = -math.inf, None
     for rho in densities:
+        rho = float(rho)
         try:
             env = environment(rho)
-        except (InputError, ValueError, TypeError, ArithmeticError, _expressions.ExpressionError) as error:
+        except (InputError, ValueError, TypeError, ArithmeticError, OverflowError) as error:
             return [("senses", f"cannot build the environment at density {rho:g}: {error}", None)]
-        values = env.values if env.values.ndim == 1 else env.values[:, 0]
-        for name in study.study.phenotypes:
-            spec = study.payoff[name]
-            if not isinstance(spec, str):
-                continue
-            try:
-                column = np.broadcast_to(
-                    np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES),
-                                                     {"y": values, "density": np.float64(rho)}), dtype=float),
-                    values.shape,
-                )
-            except _expressions.ExpressionError as error:
-                problems.append((f"payoff.{name}", str(error), spec))
-                continue
-            bad = ~np.isfinite(column)
-            if bad.any():
-                y = int(np.argmax(bad))
-                problems.append((
-                    f"payoff.{name}",
-                    f"gives {column[y]} at density {rho:g}, y = {values[y]:g}: payoffs must be finite",
-                    spec,
-                ))
-        if problems:
-            return problems
+        if not (np.all(np.isfinite(env.probs)) and np.all(np.isfinite(env.values))):
+            return [("senses", f"the environment at density {rho:g} is not finite", None)]
+        if study.decision.bits is not None:
+            top = max_information_bits(env.probs, len(study.study.phenotypes))
+            if top > largest_top:
+                largest_top, where = top, rho
+    if study.decision.bits is not None and study.decision.bits > largest_top + 1e-12:
+        problems.append((
+            "decision.bits",
+            f"beyond the capacity: at most {largest_top:.6g} bits are possible (at density "
+            f"{where:g}; min(H(Y), log2 of the number of phenotypes)), so no density would use it",
+            study.decision.bits,
+        ))
+    env = environment(float(grid[0]))
+    values = env.values if env.values.ndim == 1 else env.values[:, 0]
+    rhos = np.concatenate([grid, [study.decision.reference_density]])
+    for name in study.study.phenotypes:
+        spec = study.payoff[name]
+        if not isinstance(spec, str):
+            continue
+        try:
+            column = np.broadcast_to(
+                np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES),
+                                                 {"y": values[:, None], "density": rhos[None, :]}),
+                           dtype=float),
+                (values.size, rhos.size),
+            )
+        except (_expressions.ExpressionError, ValueError) as error:
+            problems.append((f"payoff.{name}", str(error), spec))
+            continue
+        bad = ~np.isfinite(column) | (np.abs(column) > MAX_MAGNITUDE)
+        if bad.any():
+            y, r = np.argwhere(bad)[0]
+            problems.append((
+                f"payoff.{name}",
+                f"gives {column[y, r]} at density {rhos[r]:g}, y = {values[y]:g}: payoffs must be "
+                f"finite with magnitude at most {MAX_MAGNITUDE:g}",
+                spec,
+            ))
     return problems
 
 
