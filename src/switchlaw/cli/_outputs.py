@@ -37,7 +37,7 @@ _SUFFIX_ROOM = 48
 
 #: Before manifests, the marker was a plain text file; those folders held only these names.
 _LEGACY = re.compile(
-    r"^(summary\.json|study\.toml|report\.html|law[\w.-]*\.(csv|nc)|scan\.nc|model\.sbml|"
+    r"^(summary\.json|study\.toml|report\.html|law[\w.-]*\.(csv|nc|json)|scan\.nc|model\.sbml|"
     r"figures/[\w.-]+\.(png|svg))$"
 )
 
@@ -171,6 +171,9 @@ class OutputFolder:
             self.work = self.target.parent / (
                 f".{self.target.name}.switchlaw-tmp-{os.getpid()}-{secrets.token_hex(4)}")
             self.work.mkdir()
+        except OutputExists:
+            self._leave()
+            raise
         except OSError as error:
             self._leave()
             raise OutputExists(f"--out {self.target}: cannot write there ({error.strerror})") from None
