@@ -202,7 +202,7 @@ class Checkpoint(Memory):
 
     def _read(self, full: str, expected_scan: str):
         """A batch and None, or None and why the file cannot be trusted."""
-        with np.load(full, allow_pickle=False) as data:
+        with open(full, "rb") as stream, np.load(stream, allow_pickle=False) as data:
             keys = tuple(data["keys"].tolist())
             batch = BatchResult(
                 data["items"], data["seeds"], keys,
