@@ -8,7 +8,7 @@ from typing import Callable, Mapping
 import numpy as np
 
 from .._errors import InputError
-from .._validate import as_array
+from .._validate import as_array, phenotype_names
 from ._environments import Environment
 
 
@@ -98,8 +98,10 @@ def payoff_table(payoff, environment: Environment, phenotypes=None, *, where: st
     callable) or of the value and the density (:class:`DensityDependent`).
     """
     rows = environment.hidden_probs.size
+    if phenotypes is not None:
+        phenotypes = phenotype_names(phenotypes)
     if isinstance(payoff, Mapping):
-        names = tuple(payoff)
+        names = phenotype_names(payoff, "payoff")
         if phenotypes is not None:
             unknown = [name for name in names if name not in phenotypes]
             if unknown:
