@@ -62,3 +62,19 @@ def test_public_names_exist():
     for name in sl.__all__:
         assert hasattr(sl, name), name
     assert sl.InputError.__module__ == "switchlaw"
+
+
+def test_occupancy_refuses_a_neighbourhood_too_large_to_hold(tmp_path):
+    # One state per occupied-neighbour count: 10**12 neighbours would need terabytes; the
+    # bound is named in one line instead of a MemoryError (common practice, no source).
+    with pytest.raises(sl.InputError, match=r"`neighbours` must be at most 100,000"):
+        sl.occupancy(10**12, 0.5)
+
+
+def test_occupancy_of_a_large_neighbourhood_stays_a_distribution():
+    # Past N ~ 1000 comb(N, k) overflows; the pmf must still match scipy.stats.binom.
+    from scipy import stats
+
+    env = sl.occupancy(5000, 0.3)
+    np.testing.assert_allclose(env.probs, stats.binom.pmf(np.arange(5001), 5000, 0.3), rtol=1e-12, atol=1e-300)
+    assert abs(env.probs.sum() - 1.0) < 1e-12

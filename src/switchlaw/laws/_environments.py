@@ -104,6 +104,10 @@ def _density(value, name: str = "density") -> float:
     return rho
 
 
+#: Largest neighbourhood ``occupancy`` accepts: every count is a state of the decision problem.
+MAX_NEIGHBOURS = 100_000
+
+
 def occupancy(neighbours, density, *, lattice_sites=None) -> Environment:
     """Number of occupied neighbour sites around a cell at population density ``density``.
 
@@ -136,9 +140,19 @@ def occupancy(neighbours, density, *, lattice_sites=None) -> Environment:
         raise InputError(f"`neighbours` must be an integer >= 1 (got {neighbours!r})")
     if neighbours < 1:
         raise InputError(f"`neighbours` must be an integer >= 1 (got {neighbours!r})")
+    if neighbours > MAX_NEIGHBOURS:
+        raise InputError(
+            f"`neighbours` must be at most {MAX_NEIGHBOURS:,} (one state per count; got {neighbours!r})"
+        )
     rho = _density(density)
     counts = np.arange(neighbours + 1)
-    if lattice_sites is None:
+    if lattice_sites is None and neighbours > 1000:
+        from scipy import stats
+
+        # comb(N, k) overflows past N ~ 1000: scipy's pmf works in log space.
+        probs = stats.binom.pmf(counts, neighbours, rho)
+        description = f"occupied neighbours of {neighbours}, Binomial at density {rho:g}"
+    elif lattice_sites is None:
         # Binomial(N, rho) written out (numpy's 0**0 = 1 keeps rho = 0 and 1 exact); far cheaper
         # than scipy.stats per call, which matters inside continuation loops.
         probs = comb(neighbours, counts) * rho**counts * (1.0 - rho) ** (neighbours - counts)
