@@ -49,6 +49,15 @@ def _parser() -> argparse.ArgumentParser:
         sub.add_argument("--jobs", type=int, default=None, help="local processes for the beta scan")
         sub.add_argument("--scheduler", default=None,
                          help="Dask scheduler address (tcp://host:port) or scheduler file for the beta scan")
+        sub.add_argument("--only", default=None, metavar="STAGE[,STAGE]",
+                         help="run only these stages (law always runs): law, population, regime_map, "
+                         "extinction, lattice, fluctuating, schedule, sensitivity, variants")
+        sub.add_argument("--skip", default=None, metavar="STAGE[,STAGE]", help="skip these stages")
+    compare = commands.add_parser("compare", help="a side-by-side report of two finished runs")
+    compare.add_argument("first", help="output folder of one run")
+    compare.add_argument("second", help="output folder of another run")
+    compare.add_argument("--out", required=True, help="output folder for report.html (must not exist unless --force)")
+    compare.add_argument("--force", action="store_true", help="replace an earlier compare folder")
     demos = commands.add_parser("demos", help="list the built-in studies")
     demos.set_defaults()
     show = commands.add_parser("show-demo", help="print a built-in study file")
@@ -95,11 +104,16 @@ def _run(text: str, source: str, args) -> int:
         except OutputExists as error:
             return _fail(str(error))
     from .._errors import InputError
+    from ._stages import StageError, select
 
+    try:
+        stages = select(study, args.only, args.skip)
+    except StageError as error:
+        return _fail(str(error))
     try:
         if args.jobs is not None and args.jobs < 1:
             return _fail(f"--jobs must be >= 1 (got {args.jobs})")
-        results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler)
+        results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler, stages=stages)
         with atomic_folder(out, force=args.force) as folder:
             written = write_outputs(results, folder)
     except OutputExists as error:
@@ -140,6 +154,10 @@ def main(argv=None) -> int:
         except KeyError:
             return _fail(f"unknown demo {args.name!r} (valid: {', '.join(DEMOS)})")
         return _run(text, f"demo:{args.name}", args)
+    if args.command == "compare":
+        from ._compare import compare
+
+        return compare(args.first, args.second, args.out, force=args.force)
     if args.command == "demos":
         for name, text in DEMOS.items():
             print(f"{name:10s} {text}")
