@@ -335,6 +335,7 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
         sl.plot_regime_map(results.regime_map, ax=ax)
         save(fig, "regime_map")
 
+    extra = _extra_figures(results, save, made)
     data = summary(results)
     (folder / "summary.json").write_text(json.dumps(data, indent=2, allow_nan=False) + "\n", encoding="utf-8")
     (folder / "study.toml").write_text(results.text, encoding="utf-8")
@@ -354,6 +355,31 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
         sl.export(results.model, folder / "model.sbml", format="sbml", law=results.law,
                   initial=results.study.population.initial_density, study=study_record)
         written.append("model.sbml")
-    (folder / "report.html").write_text(render(results, data, made), encoding="utf-8")
+    (folder / "report.html").write_text(render(results, data, made, extra), encoding="utf-8")
     written.append("report.html")
     return written + [f"figures/{p.name}" for p in sorted(figures.iterdir())]
+
+
+def _extra_figures(results: Results, save, saved: dict) -> dict:
+    """Save the optional stages' figures; name -> (png path, caption)."""
+    from . import _figures
+
+    extras, made = results.extras, []
+    names = list(results.law.phenotypes)
+    if "extinction" in extras:
+        made += _figures.extinction(extras["extinction"])
+    if "lattice" in extras:
+        made += _figures.lattice(extras["lattice"])
+    if "fluctuating" in extras:
+        made += _figures.fluctuating(extras["fluctuating"])
+    if "schedule" in extras:
+        made += _figures.schedule(extras["schedule"], names, results.study.schedule.treatment)
+    if "sensitivity" in extras:
+        made += _figures.sensitivity(extras["sensitivity"])
+    if results.variants:
+        made += _figures.variants(results.diagram, results.variants)
+    out = {}
+    for name, fig, caption in made:
+        save(fig, name)
+        out[name] = (saved[name], caption)
+    return out

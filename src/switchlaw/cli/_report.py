@@ -24,9 +24,10 @@ details { margin: 0.5em 0 1em; }
 """
 
 
-def _image(path: Path, alt: str) -> str:
+def _image(path: Path, alt: str, caption: str = "") -> str:
     data = base64.b64encode(path.read_bytes()).decode("ascii")
-    return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
+    return (f'<figure><img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
+            f'<figcaption>{html.escape(caption or alt)}</figcaption></figure>')
 
 
 def _table(header, rows) -> str:
@@ -45,13 +46,19 @@ def _fmt(value, digits: int = 6) -> str:
     return f"{value:.{digits}g}"
 
 
-def render(results, data: dict, figures: dict) -> str:
-    """The report as one HTML string."""
+def render(results, data: dict, figures: dict, extra: dict | None = None) -> str:
+    """The report as one HTML string: the verdict first, then the figures, the study file last.
+
+    ``extra`` maps the optional stages' figure names to ``(png path, caption)``.
+    """
+    from ._report_parts import STYLE, sections_html, verdict_html
+
     law = results.law
     title = html.escape(results.study.study.title)
     parts = [
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>",
-        f"<title>{title} — switchlaw report</title><style>{_STYLE}</style></head><body>",
+        "<meta name='viewport' content='width=device-width, initial-scale=1'>",
+        f"<title>{title} — switchlaw report</title><style>{_STYLE}{STYLE}</style></head><body>",
         f"<h1>{title}</h1>",
         f"<p class='muted'>switchlaw {html.escape(data['switchlaw_version'])} · seed "
         f"{results.study.study.seed}</p>",
@@ -59,12 +66,11 @@ def render(results, data: dict, figures: dict) -> str:
     ]
     if results.study.study.notes:
         parts.append(f"<p>{html.escape(results.study.study.notes)}</p>")
-    parts.append("<h2>The study as given</h2>")
-    parts.append(f"<pre>{html.escape(results.text)}</pre>")
+    parts.append(verdict_html(data))
 
     route = {"beta": "β", "cost_per_bit": "sensing cost (payoff units per bit)",
              "bits": "information budget (bits)"}[law.route]
-    parts.append("<h2>The switching law</h2>")
+    parts.append("<h2 id='law'>The switching law</h2>")
     parts.append(
         f"<p>Objective <code>{law.objective}</code>, derived from {route} = {law.setting:g} over "
         f"{law.densities.size} densities in [{law.densities[0]:g}, {law.densities[-1]:g}]"
@@ -79,7 +85,9 @@ def render(results, data: dict, figures: dict) -> str:
             f"{max(law.betas):.4g} nats per payoff unit (∞ where the budget does not bind).</p>"
         )
     for key in sorted(k for k in figures if k == "law" or k.startswith("law_")):
-        parts.append(_image(figures[key], f"switching law heat map and fractions ({key})"))
+        parts.append(_image(figures[key], f"switching law heat map and fractions ({key})",
+                            "Left: probability of the phenotype for each sensed value and density; look for "
+                            "where it switches. Right: mean-field phenotype fractions against density."))
     step = max(1, law.densities.size // 20)
     fractions = law.fractions(law.densities[::step])
     rows = [
@@ -97,7 +105,9 @@ def render(results, data: dict, figures: dict) -> str:
         f"<p>At density {results.reference_density:g}: the payoff a cell can earn for each amount of "
         "information it uses about its surroundings, along β.</p>"
     )
-    parts.append(_image(figures["tradeoff"], "information–payoff curve"))
+    parts.append(_image(figures["tradeoff"], "information–payoff curve",
+                        "Expected payoff (payoff units) against the information used (bits) along β; kinks "
+                        "mark the critical betas where phenotypes enter or leave the law."))
     parts.append("<details><summary>Numbers behind the figure</summary>")
     parts.append(_table(
         ["β", "I (bits)", "E[u]"],
@@ -115,7 +125,7 @@ def render(results, data: dict, figures: dict) -> str:
             change(c) for c in curve.critical_betas) + ".</p>")
 
     if results.diagram is not None:
-        parts.append("<h2>Population: equilibria and bifurcations in β</h2>")
+        parts.append("<h2 id='population'>Population: equilibria and bifurcations in β</h2>")
         parts.append(
             "<p>Stable equilibria solid, unstable dashed. Regimes: <em>extinction</em> — no positive "
             "state is stable; <em>monostable</em> — any small population grows to one stable density; "
@@ -130,7 +140,10 @@ def render(results, data: dict, figures: dict) -> str:
                 f"<p><strong>At the study's β = {at['beta']:.6g}</strong> (dotted line) the population is "
                 f"in the <em>{html.escape(at['regime'])}</em> regime{threshold}.</p>"
             )
-        parts.append(_image(figures["bifurcation"], "bifurcation diagram in beta"))
+        parts.append(_image(figures["bifurcation"], "bifurcation diagram in beta",
+                            "Equilibrium density (fraction of sites) against β (nats per payoff unit); look "
+                            "for the folds and transcritical points where the regime changes, and where the "
+                            "study's β (dotted) sits between them."))
         crit = results.diagram.critical_points
         parts.append("<h3>Critical β values</h3>")
         parts.append(_table(["β", "kind", "density"], [[_fmt(c.beta, 10), c.kind, _fmt(c.density, 6)] for c in crit])
@@ -148,20 +161,26 @@ def render(results, data: dict, figures: dict) -> str:
         parts.append("</details>")
     if results.regime_map is not None:
         rm = results.regime_map
-        parts.append(f"<h2>Regime map: β × {html.escape(rm.parameter)}</h2>")
+        parts.append(f"<h2 id='regime_map'>Regime map: β × {html.escape(rm.parameter)}</h2>")
         what = {"death_scale": "every phenotype's death rate", "division_scale": "every phenotype's division rate"}
         parts.append(
             f"<p>The vertical axis multiplies {what.get(rm.parameter, rm.parameter)} of the study by the "
             "value shown (1 is the study as given). Colours are the regimes defined above; squares and "
             "dots mark transcritical points and folds found by continuation in β.</p>"
         )
-        parts.append(_image(figures["regime_map"], "regime map"))
+        parts.append(_image(figures["regime_map"], "regime map",
+                            "Regimes over β and the scale factor; black curves are the critical betas "
+                            "computed by continuation, the boundaries between the colour cells. Look for "
+                            "where the study's row (scale 1) crosses them."))
         parts.append("<details><summary>Numbers behind the figure</summary>")
         parts.append(_table([rm.parameter, "critical β (kind)"], [
             [_fmt(v, 4), "; ".join(f"{c.beta:.5g} ({c.kind})" for c in row) or "–"]
             for v, row in zip(rm.values, rm.critical)
         ]))
         parts.append("</details>")
+    parts.append(sections_html(results, data, extra or {}))
+    parts.append("<h2 id='study'>The study as given</h2>")
+    parts.append(f"<pre>{html.escape(results.text)}</pre>")
     parts.append(f"<p class='caution'><strong>Research use only.</strong> {html.escape(CAUTION)}</p>")
     parts.append("</body></html>")
     return "\n".join(parts)
