@@ -14,6 +14,7 @@ from pathlib import Path
 DEMOS = {
     "colony": "A colony on a hexagonal lattice: divide or roam by occupied neighbours (invented).",
     "dormancy": "Microbes choosing growth or dormancy under a noisy stress cue (invented).",
+    "pulsed": "Cells growing or tolerating a stress that comes in pulses, on schedules (invented).",
 }
 
 
