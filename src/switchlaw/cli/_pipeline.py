@@ -125,25 +125,23 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         tau=pop.tau, objective=study.decision.objective, phenotypes=names,
     )
     results.model = model
-    if "population" not in chosen:
-        _run_extras(results, payoff, environment, progress, jobs=jobs, scheduler=scheduler, quiet=quiet)
-        return results
-    progress.stage("population regimes along beta (scan)")
-    grid = pop.betas.values()
-    executor = "serial"
-    if scheduler is not None:
-        executor = scheduler
-    elif jobs is not None and jobs > 1:
-        executor = "processes"
-    dataset = sl.scan(
-        sl.RegimeSummary(model), {"beta": grid}, executor=executor,
-        jobs=jobs if executor == "processes" else None, seed=study.study.seed,
-        progress=not quiet and sys.stderr.isatty(), study=study.study.title,
-    )
-    dataset.attrs["caution"] = CAUTION
-    results.scan = dataset
-    progress.stage("continuation of equilibrium branches in beta")
-    results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
+    if "population" in chosen:
+        progress.stage("population regimes along beta (scan)")
+        grid = pop.betas.values()
+        executor = "serial"
+        if scheduler is not None:
+            executor = scheduler
+        elif jobs is not None and jobs > 1:
+            executor = "processes"
+        dataset = sl.scan(
+            sl.RegimeSummary(model), {"beta": grid}, executor=executor,
+            jobs=jobs if executor == "processes" else None, seed=study.study.seed,
+            progress=not quiet and sys.stderr.isatty(), study=study.study.title,
+        )
+        dataset.attrs["caution"] = CAUTION
+        results.scan = dataset
+        progress.stage("continuation of equilibrium branches in beta")
+        results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
     if study.regime_map is not None and "regime_map" in chosen:
         spec = study.regime_map
         progress.stage(f"regime map over beta x {spec.parameter}")
