@@ -202,6 +202,24 @@ def test_compare_writes_one_report(small_run, tmp_path, capsys):
     assert not (tmp_path / "x").exists()
 
 
+def test_allee_threshold_derivative_matches_central_differences(small_run):
+    # Reference: central differences of thresholds located independently by the public API,
+    # with the step h = 1e-4 (truncation error O(h^2)).
+    _, _, summary = small_run
+    entry = next(e for e in summary["sensitivity"]["equilibria"] if e["allee_threshold"])
+
+    def threshold(death_divide):
+        model = sl.MeanField(
+            {"divide": lambda y: y / 6, "roam": lambda y: 1 - y / 6}, lambda rho: sl.occupancy(6, rho),
+            division=[1.0, 0.0], death=[death_divide, 0.27], objective="max-entropy", phenotypes=["divide", "roam"])
+        return model.allee_threshold(12.0)
+
+    h = 1e-4
+    slope = (threshold(0.27 + h) - threshold(0.27 - h)) / (2 * h)
+    assert entry["density"] == pytest.approx(threshold(0.27), rel=1e-9)
+    assert entry["derivatives"]["death.divide"] == pytest.approx(slope, rel=1e-3)
+
+
 # --------------------------------------------------------------------------- numbers against references
 def test_chain_extinction_matches_a_direct_linear_solve():
     # Reference: the first-step equations P_n = b_n/(b_n+d_n) P_{n+1} + d_n/(b_n+d_n) P_{n-1},

@@ -73,6 +73,8 @@ def lattice(lat: dict) -> list:
     snaps = ("Snapshots of the first replicate (white: empty site; colours: phenotypes). The clustering is "
              "P(neighbour occupied | occupied) / density: 1 for cells placed at random, above 1 where "
              "daughters crowd next to their mothers. Look for patches that mean field cannot see.")
+    if lat["lattice"].neighbourhood == "hexagonal":
+        snaps += " Hexagonal rows are drawn as a square grid: odd rows sit half a site to the right."
     cmp_ = lat["comparison"]
     fig2, ax = plt.subplots(figsize=(6.2, 3.8), constrained_layout=True)
     ax.plot(cmp_.times, cmp_.predicted, color="k", lw=1.2, label="mean field (the law's compartments)")

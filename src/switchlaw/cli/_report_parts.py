@@ -207,7 +207,8 @@ def sections_html(results, data: dict, figures: dict) -> str:
     if "sensitivity" in data:
         sen = data["sensitivity"]
         tables = []
-        local = [[f"equilibrium ρ* = {_g(e['density'])} ({'stable' if e['stable'] else 'unstable'})", p, _g(v)]
+        local = [[f"{'Allee threshold' if e['allee_threshold'] else 'equilibrium'} ρ* = {_g(e['density'])} "
+                  f"({'stable' if e['stable'] else 'unstable'})", p, _g(v)]
                  for e in sen["equilibria"] for p, v in e["derivatives"].items()]
         local += [[f"{c['kind']} β_c = {_g(c['beta'])}", p, _g(v)]
                   for c in sen["critical_betas"] for p, v in c["derivatives"].items()]

@@ -224,13 +224,14 @@ def run_sensitivity(study, model, diagram, *, jobs=None, scheduler=None, quiet=T
     beta = own_beta(study, sen.beta)
     out = {"beta": beta, "equilibria": [], "critical": [], "sobol": []}
     if sen.parameters and beta is not None:
+        threshold = model.allee_threshold(beta)
         for eq in model.equilibria(beta)[1:]:
             try:
                 result = sl.equilibrium_sensitivity(model, beta, eq.density)
             except InputError:
                 continue  # a fold: its derivative is that of a critical beta
             out["equilibria"].append({
-                "density": eq.density, "stable": eq.stable,
+                "density": eq.density, "stable": eq.stable, "allee_threshold": eq.density == threshold,
                 "derivatives": {p: _local_value(result, p, names, "d_density_d") for p in sen.parameters},
             })
         points = diagram.critical_points if diagram is not None else model.critical_betas(
@@ -352,7 +353,7 @@ def summaries(extras: dict, names) -> dict:
         sen = extras["sensitivity"]
         out["sensitivity"] = {
             "beta": sen["beta"],
-            "equilibria": [{"density": e["density"], "stable": e["stable"],
+            "equilibria": [{"density": e["density"], "stable": e["stable"], "allee_threshold": e["allee_threshold"],
                             "derivatives": {k: _num(v) for k, v in e["derivatives"].items()}}
                            for e in sen["equilibria"]],
             "critical_betas": [{"kind": c["kind"], "beta": c["beta"], "density": c["density"],
