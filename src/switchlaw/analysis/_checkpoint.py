@@ -5,6 +5,13 @@ seed, study) and one ``batch-*.npz`` file per finished batch. Every file is writ
 temporary name and moved into place with ``os.replace``, so a file is either complete or
 absent; leftovers of a write cut short are removed when the scan resumes. A rerun whose
 manifest differs is refused with the differences listed, and nothing is touched.
+
+Each batch file carries a SHA-256 checksum of its contents and the hash of the scan that
+wrote it (grid, function, study, seed). On resuming, a batch that cannot be read, fails its
+checksum, belongs to another scan, sits under another batch's name, or holds seeds that are
+not its items' seeds is set aside (renamed ``corrupt-*``) with a :class:`CheckpointWarning`,
+and its items are computed again; since every item's numbers come from its own seed, the
+resumed scan still equals the uninterrupted one bit for bit.
 """
 
 from __future__ import annotations
@@ -21,7 +28,35 @@ from ._batch import BatchResult
 
 MANIFEST = "manifest.json"
 FORMAT = "switchlaw scan checkpoint"
-VERSION = 1
+VERSION = 2
+#: Versions read back (version 1 batches carry no checksum; they get the other checks).
+READABLE = (1, 2)
+
+
+class CheckpointWarning(RuntimeWarning):
+    """A checkpoint batch was damaged or foreign; its items are computed again."""
+
+
+def scan_hash(fingerprint: dict) -> str:
+    """SHA-256 of a scan's fingerprint (grid, function, study, seed), as hex."""
+    text = json.dumps(fingerprint, sort_keys=True, separators=(",", ":"), default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def checksum(items, seeds, keys, values) -> str:
+    """SHA-256 over every array of a batch, with dtypes and shapes, as hex."""
+    digest = hashlib.sha256()
+    for array in (items, seeds, np.array(keys, dtype=str), *values):
+        array = np.ascontiguousarray(array)
+        digest.update(f"{array.dtype.str}{array.shape}".encode())
+        digest.update(array.tobytes())
+    return digest.hexdigest()
+
+
+def batch_name(items) -> str:
+    """The file name of the batch holding ``items`` (first item, count, hash of the items)."""
+    tag = hashlib.sha256(np.asarray(items, dtype=np.int64).tobytes()).hexdigest()[:8]
+    return f"batch-{int(items[0]):012d}-{len(items):06d}-{tag}.npz"
 
 
 def _atomic_write(directory: str, name: str, write) -> None:
@@ -86,6 +121,7 @@ class Checkpoint(Memory):
             raise InputError(f"`checkpoint` must be a path (got {type(path).__name__})") from None
         self.fingerprint = fingerprint
         self.items = items
+        self.version = VERSION
         if os.path.exists(self.path) and not os.path.isdir(self.path):
             raise InputError(f"`checkpoint` must be a directory; {self.path!r} is a file")
         manifest = os.path.join(self.path, MANIFEST)
@@ -104,11 +140,13 @@ class Checkpoint(Memory):
                 stored = json.load(stream)
         except (OSError, ValueError) as exc:
             raise InputError(f"`checkpoint` manifest {manifest!r} cannot be read ({exc})") from None
-        if stored.get("format") != FORMAT or stored.get("version") != VERSION:
+        if not isinstance(stored, dict) or stored.get("format") != FORMAT or stored.get("version") not in READABLE:
+            found = stored if not isinstance(stored, dict) else (stored.get("format"), stored.get("version"))
             raise InputError(
                 f"`checkpoint` {self.path!r} is not a version-{VERSION} scan checkpoint "
-                f"(format {stored.get('format')!r}, version {stored.get('version')!r})"
+                f"(format and version {found!r})"
             )
+        self.version = stored["version"]
         found = differences(stored.get("fingerprint", {}), self.fingerprint)
         if found:
             raise InputError(
@@ -118,6 +156,12 @@ class Checkpoint(Memory):
             )
 
     def _load(self) -> None:
+        import warnings
+
+        from ._seeds import item_seeds
+
+        expected_scan = scan_hash(self.fingerprint)
+        seen: set = set()
         for name in sorted(os.listdir(self.path)):
             full = os.path.join(self.path, name)
             if name.startswith(".tmp-"):
@@ -126,17 +170,56 @@ class Checkpoint(Memory):
             if not (name.startswith("batch-") and name.endswith(".npz")):
                 continue
             try:
-                with np.load(full, allow_pickle=False) as data:
-                    keys = tuple(data["keys"].tolist())
-                    batch = BatchResult(
-                        data["items"], data["seeds"], keys,
-                        tuple(data[f"v{j}"] for j in range(len(keys))), float(data["seconds"]),
-                    )
-            except (OSError, ValueError, KeyError) as exc:
-                raise InputError(f"`checkpoint` batch file {full!r} cannot be read ({exc})") from None
-            if batch.items.size and (batch.items.min() < 0 or batch.items.max() >= self.items):
-                raise InputError(f"`checkpoint` batch file {full!r} holds items outside this scan")
+                batch, problem = self._read(full, expected_scan)
+                if problem is None:
+                    items = [int(i) for i in batch.items]
+                    if batch.items.ndim != 1 or not items:
+                        problem = "it holds no items"
+                    elif min(items) < 0 or max(items) >= self.items:
+                        problem = "it holds items outside this scan"
+                    elif batch_name(batch.items) != name:
+                        problem = "its contents belong to another batch's file name"
+                    elif seen.intersection(items) or len(set(items)) != len(items):
+                        problem = "it repeats items of another batch"
+                    elif not np.array_equal(batch.seeds, item_seeds(
+                            self.fingerprint["seed"], items, self.fingerprint.get("replicates"))):
+                        problem = "its seeds are not this scan's seeds"
+                    elif any(np.shape(v)[:1] != (len(items),) for v in batch.values):
+                        problem = "its outputs do not have one row per item"
+            except Exception as exc:  # noqa: BLE001 - any damage means: compute it again
+                problem = f"it cannot be read ({type(exc).__name__}: {exc})"
+            if problem is not None:
+                aside = os.path.join(self.path, "corrupt-" + name)
+                os.replace(full, aside)
+                warnings.warn(
+                    f"checkpoint batch {full!r} was not used ({problem}); it was renamed "
+                    f"{os.path.basename(aside)!r} and its items are computed again",
+                    CheckpointWarning, stacklevel=4,
+                )
+                continue
+            seen.update(int(i) for i in batch.items)
             self.batches.append(batch)
+
+    def _read(self, full: str, expected_scan: str):
+        """A batch and None, or None and why the file cannot be trusted."""
+        with open(full, "rb") as stream, np.load(stream, allow_pickle=False) as data:
+            keys = tuple(data["keys"].tolist())
+            batch = BatchResult(
+                data["items"], data["seeds"], keys,
+                tuple(data[f"v{j}"] for j in range(len(keys))), float(data["seconds"]),
+            )
+            files = set(data.files)
+            stored_sum = str(data["checksum"]) if "checksum" in files else None
+            stored_scan = str(data["scan"]) if "scan" in files else None
+        if stored_sum is None and self.version >= 2:
+            return None, "it has no checksum"
+        if stored_sum is not None and stored_sum != checksum(batch.items, batch.seeds, keys, batch.values):
+            return None, "its checksum does not match its contents"
+        if stored_scan is not None and stored_scan != expected_scan:
+            return None, "it was written by a different scan (grid, function, study or seed)"
+        if batch.items.dtype.kind not in "iu" or batch.seeds.dtype != np.int64:
+            return None, "its items or seeds are not integers"
+        return batch, None
 
     def prepare(self) -> None:
         """Create the directory and manifest (once the scan is known to be runnable)."""
@@ -148,9 +231,9 @@ class Checkpoint(Memory):
 
     def add(self, batch: BatchResult) -> None:
         arrays = {"items": batch.items, "seeds": batch.seeds, "keys": np.array(batch.keys, dtype=str),
-                  "seconds": np.float64(batch.seconds)}
+                  "seconds": np.float64(batch.seconds),
+                  "checksum": np.array(checksum(batch.items, batch.seeds, batch.keys, batch.values)),
+                  "scan": np.array(scan_hash(self.fingerprint))}
         arrays.update({f"v{j}": value for j, value in enumerate(batch.values)})
-        tag = hashlib.sha256(batch.items.tobytes()).hexdigest()[:8]
-        name = f"batch-{int(batch.items[0]):012d}-{batch.items.size:06d}-{tag}.npz"
-        _atomic_write(self.path, name, lambda stream: np.savez(stream, **arrays))
+        _atomic_write(self.path, batch_name(batch.items), lambda stream: np.savez(stream, **arrays))
         super().add(batch)

@@ -80,12 +80,13 @@ def page(first, second) -> str:
 
 def compare(first, second, out, *, force: bool = False) -> int:
     """Write ``out/report.html``; exit code 0, or 2 with a one-line error and nothing written."""
-    from ._outputs import OutputExists, atomic_folder
+    from ._outputs import OutputExists, OutputFolder
 
     try:
         text = page(first, second)
-        with atomic_folder(Path(out), force=force) as folder:
-            (folder / "report.html").write_text(text, encoding="utf-8")
+        with OutputFolder(out, force=force) as folder:
+            (folder.work / "report.html").write_text(text, encoding="utf-8")
+            folder.commit()
     except (CompareError, OutputExists) as error:
         print(f"switchlaw: error: {error}", file=sys.stderr)
         return 2

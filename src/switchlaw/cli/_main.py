@@ -37,6 +37,8 @@ def _parser() -> argparse.ArgumentParser:
     commands = parser.add_subparsers(dest="command", metavar="COMMAND")
     check = commands.add_parser("check", help="validate a study file")
     check.add_argument("study", help="path to a study file (TOML)")
+    check.add_argument("--yes", action="store_true",
+                       help="accept a study whose estimated time or memory is above the limit")
     for name, text in (("run", "run a whole study"), ("demo", "run a built-in study")):
         sub = commands.add_parser(name, help=text)
         if name == "run":
@@ -44,7 +46,12 @@ def _parser() -> argparse.ArgumentParser:
         else:
             sub.add_argument("name", nargs="?", default="colony", help=f"one of: {', '.join(DEMOS)}")
         sub.add_argument("--out", required=True, help="output folder (must not exist unless --force)")
-        sub.add_argument("--force", action="store_true", help="replace an existing output folder")
+        sub.add_argument("--force", action="store_true",
+                         help="replace an earlier switchlaw output folder (only the files it wrote)")
+        sub.add_argument("--into-existing", action="store_true",
+                         help="write into an existing folder switchlaw did not write (its files are kept)")
+        sub.add_argument("--yes", action="store_true",
+                         help="run even when the estimated time or memory is above the limit")
         sub.add_argument("--seed", type=int, default=None, help="override the study's seed")
         sub.add_argument("--quiet", action="store_true", help="no progress messages")
         sub.add_argument("--jobs", type=int, default=None, help="local processes for the beta scan")
@@ -80,31 +87,30 @@ def _demo_text(name: str) -> str:
 
 
 def _run(text: str, source: str, args) -> int:
-    from ._outputs import OutputExists, atomic_folder
-    from ._pipeline import run, write_outputs
+    from .._errors import InputError
+    from ._outputs import OutputExists, OutputFolder, check_target
     from ._study import StudyError, load_text
 
+    if args.seed is not None and args.seed < 0:
+        return _fail(f"--seed must be >= 0 (got {args.seed})")
+    if args.jobs is not None and args.jobs < 1:
+        return _fail(f"--jobs must be >= 1 (got {args.jobs})")
     try:
-        study = load_text(text, source)
+        check_target(args.out)  # an unusable --out is refused before anything is computed
+    except OutputExists as error:
+        return _fail(str(error))
+    try:
+        study = load_text(text, source, seed=args.seed)
     except StudyError as error:
         for line in error.lines:
             print(line, file=sys.stderr)
         return 2
-    if args.seed is not None:
-        if args.seed < 0:
-            return _fail(f"--seed must be >= 0 (got {args.seed})")
-        study.study.seed = args.seed
-    out = Path(args.out)
-    if out.exists():
-        if not args.force:
-            return _fail(f"--out {out} already exists (use --force to replace it)")
-        from ._outputs import _check_replaceable
+    from ._estimate import over_limit
 
-        try:
-            _check_replaceable(out.resolve())
-        except OutputExists as error:
-            return _fail(str(error))
-    from .._errors import InputError
+    refused = over_limit(study)
+    if refused and not args.yes:
+        return _fail(f"{source}: {refused}; add --yes to run it anyway")
+    from ._pipeline import run, write_outputs
     from ._stages import StageError, select
 
     try:
@@ -112,11 +118,12 @@ def _run(text: str, source: str, args) -> int:
     except StageError as error:
         return _fail(str(error))
     try:
-        if args.jobs is not None and args.jobs < 1:
-            return _fail(f"--jobs must be >= 1 (got {args.jobs})")
-        results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler, stages=stages)
-        with atomic_folder(out, force=args.force) as folder:
-            written = write_outputs(results, folder)
+        with OutputFolder(args.out, force=args.force, into_existing=args.into_existing) as folder:
+            results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler,
+                          stages=stages)
+            written = write_outputs(results, folder.work)
+            folder.commit()
+            out = folder.target
     except OutputExists as error:
         return _fail(str(error))
     except InputError as error:
@@ -133,6 +140,7 @@ def main(argv=None) -> int:
         _parser().print_help()
         return 2
     if args.command == "check":
+        from ._estimate import over_limit
         from ._study import StudyError, load
 
         try:
@@ -141,13 +149,19 @@ def main(argv=None) -> int:
             for line in error.lines:
                 print(line, file=sys.stderr)
             return 2
+        refused = over_limit(study)
+        if refused and not args.yes:
+            return _fail(f"{args.study}: {refused}; `run` needs --yes for it")
         print(f"{args.study}: ok ({study.study.title}; {len(study.study.phenotypes)} phenotypes)")
         return 0
     if args.command == "run":
+        from ._study import StudyError, read
+
         try:
-            text = Path(args.study).read_text(encoding="utf-8")
-        except OSError as error:
-            return _fail(f"{args.study}: cannot be read ({error.strerror})")
+            text = read(args.study)
+        except StudyError as error:
+            print(error.lines[0], file=sys.stderr)
+            return 2
         return _run(text, args.study, args)
     if args.command == "demo":
         try:

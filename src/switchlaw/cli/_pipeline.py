@@ -6,8 +6,10 @@ import json
 import math
 import sys
 import time
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 
@@ -289,6 +291,29 @@ def summary(results: Results) -> dict:
     return out
 
 
+class Figure(NamedTuple):
+    """A figure written into ``figures/``: what it shows, for whom, and its PNG."""
+
+    kind: str
+    label: str
+    path: Path
+
+
+def figure_stem(index: int, name: str) -> str:
+    """A short, safe, unique file stem for phenotype ``index`` named ``name``.
+
+    Only ASCII letters, digits, ``-`` and ``_`` of the name are kept (at most 24), after the
+    phenotype's 1-based position, which alone makes the stem unique.
+
+    >>> figure_stem(0, "divide")
+    'law-1-divide'
+    >>> figure_stem(2, "../<b>évite</b>")
+    'law-3-bvitecb'
+    """
+    slug = re.sub(r"[^A-Za-z0-9_-]", "", name)[:24]
+    return f"law-{index + 1}" + (f"-{slug}" if slug else "")
+
+
 def write_outputs(results: Results, folder: Path) -> list[str]:
     """Write every output file into ``folder`` (a fresh temporary folder); returns their names."""
     import matplotlib
@@ -302,23 +327,23 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
 
     figures = folder / "figures"
     figures.mkdir()
-    made = {}
+    made = []
 
-    def save(fig, name):
+    def save(fig, stem, kind, label=""):
         for suffix in ("png", "svg"):
-            fig.savefig(figures / f"{name}.{suffix}", dpi=110)
+            fig.savefig(figures / f"{stem}.{suffix}", dpi=110)
         plt.close(fig)
-        made[name] = figures / f"{name}.png"
+        made.append(Figure(kind, label, figures / f"{stem}.png"))
 
     names = list(results.law.phenotypes)
     shown = names[1:] if len(names) == 2 else names  # two phenotypes: one map says it all
     for name in shown:
         fig, axes = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
         sl.plot_law(results.law, phenotype=name, axes=axes)
-        save(fig, "law" if len(shown) == 1 else f"law_{name}")
+        save(fig, "law" if len(shown) == 1 else figure_stem(names.index(name), name), "law", name)
     fig, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
     sl.plot_tradeoff(results.curve, ax=ax, phenotypes=names)
-    save(fig, "tradeoff")
+    save(fig, "tradeoff", "tradeoff")
     if results.diagram is not None:
         fig, ax = plt.subplots(figsize=(6.5, 4.2), constrained_layout=True)
         sl.plot_bifurcation(results.diagram, ax=ax)
@@ -327,11 +352,11 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
             ax.axvline(beta, color="C2", lw=1, ls=":")
             ax.annotate("study's β", (beta, 0.97), xycoords=("data", "axes fraction"), fontsize=8,
                         color="C2", ha="left", va="top", xytext=(3, 0), textcoords="offset points")
-        save(fig, "bifurcation")
+        save(fig, "bifurcation", "bifurcation")
     if results.regime_map is not None:
         fig, ax = plt.subplots(figsize=(6.5, 4.5), constrained_layout=True)
         sl.plot_regime_map(results.regime_map, ax=ax)
-        save(fig, "regime_map")
+        save(fig, "regime_map", "regime_map")
 
     extra = _extra_figures(results, save, made)
     data = summary(results)
@@ -358,7 +383,7 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
     return written + [f"figures/{p.name}" for p in sorted(figures.iterdir())]
 
 
-def _extra_figures(results: Results, save, saved: dict) -> dict:
+def _extra_figures(results: Results, save, saved: list) -> dict:
     """Save the optional stages' figures; name -> (png path, caption)."""
     from . import _figures
 
@@ -378,6 +403,6 @@ def _extra_figures(results: Results, save, saved: dict) -> dict:
         made += _figures.variants(results.diagram, results.variants)
     out = {}
     for name, fig, caption in made:
-        save(fig, name)
-        out[name] = (saved[name], caption)
+        save(fig, name, name)
+        out[name] = (saved[-1].path, caption)
     return out

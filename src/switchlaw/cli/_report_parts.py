@@ -143,7 +143,9 @@ def sections_html(results, data: dict, figures: dict) -> str:
         sections.append({
             "id": "lattice", "title": "Lattice agents",
             "paragraphs": [
-                f"{lat['sites']} sites, law at β = {_g(lat['beta'])} {BETA_UNIT}. Final density "
+                f"{lat['sites']} sites, law "
+                + (f"at β = {_g(lat['beta'])} {BETA_UNIT}" if lat["beta"] is not None
+                   else "by the study's information budget") + ". Final density "
                 f"{_g(lat['final_density'])} (standard error {_g(lat['final_density_standard_error'], 2)}) "
                 f"against {_g(lat['mean_field_final_density'])} in mean field; the largest gap, "
                 f"{_g(lat['largest_discrepancy'], 3)} ({DENSITY_UNIT}) at time {_g(lat['largest_discrepancy_at'], 3)}, is "

@@ -180,7 +180,6 @@ def semantic(study) -> list[tuple[str, str, object]]:
         problems += _rates(lat.motility, names, "lattice.motility")
         if study.population is not None and study.population.crowding and any(study.population.crowding.values()):
             problems.append(("lattice", "lattice agents have no crowding term: remove population.crowding", None))
-        problems += _needs_beta(study, lat.beta, "lattice.beta")
     flu = study.fluctuating
     if flu is not None:
         n = len(flu.states)

@@ -65,10 +65,16 @@ def own_beta(study, value=None) -> float | None:
 
 
 def _law_on_unit_interval(study, payoff, environment, beta, points=51):
+    """The law on densities 0..1 at ``beta``, or by the study's own route when ``beta`` is None."""
     import switchlaw as sl
 
-    return sl.derive_law(payoff, environment, densities=np.linspace(0.0, 1.0, points), beta=beta,
-                         objective=study.decision.objective, phenotypes=study.study.phenotypes)
+    if beta is not None:
+        route = {"beta": beta}
+    else:
+        route = {k: getattr(study.decision, k) for k in ("beta", "cost_per_bit", "bits")
+                 if getattr(study.decision, k) is not None}
+    return sl.derive_law(payoff, environment, densities=np.linspace(0.0, 1.0, points),
+                         objective=study.decision.objective, phenotypes=study.study.phenotypes, **route)
 
 
 def _rates(study, table):
@@ -107,7 +113,7 @@ def run_lattice(study, payoff, environment) -> dict:
     from switchlaw.stochastic._founders import neighbour_clustering
 
     lat = study.lattice
-    beta = own_beta(study, lat.beta)
+    beta = own_beta(study, lat.beta)  # None with a budget in bits: the law follows the study's route
     names = study.study.phenotypes
     lattice = sl.Lattice((lat.rows, lat.columns), neighbourhood=lat.neighbourhood)
     law = _law_on_unit_interval(study, payoff, environment, beta)

@@ -19,6 +19,25 @@ from . import _expressions, _sections
 PAYOFF_VARIABLES = ("y", "density")
 PARAMETER_VARIABLES = ("density",)
 
+# Size bounds: what one machine can do in minutes. ``_estimate`` weighs the stages together.
+#: Points of any grid (densities, betas, regime-map values).
+MAX_POINTS = 10_000
+#: Neighbours a cell counts (states of the sensed count: neighbours + 1).
+MAX_NEIGHBOURS = 500
+#: Sites of a finite lattice.
+MAX_LATTICE_SITES = 10**9
+#: Signal bins (edges - 1).
+MAX_EDGES = 1_001
+#: Phenotypes.
+MAX_PHENOTYPES = 32
+#: Characters of a phenotype name (it names columns, figures and SBML species).
+MAX_NAME = 64
+#: Largest magnitude of any number in a study (rates, betas, payoff constants, scales);
+#: beyond it products of two of them overflow float64.
+MAX_MAGNITUDE = 1e12
+#: Smallest positive scale (receptor sd, tau) accepted.
+MIN_SCALE = 1e-9
+
 
 class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", strict=True)
@@ -29,7 +48,7 @@ class Span(_Strict):
 
     start: float
     stop: float
-    points: int = Field(ge=2, le=100_000)
+    points: int = Field(ge=2, le=MAX_POINTS)
 
     def values(self) -> np.ndarray:
         return np.linspace(self.start, self.stop, self.points)
@@ -38,30 +57,30 @@ class Span(_Strict):
 class Meta(_Strict):
     title: str
     notes: str = ""
-    seed: int = Field(default=0, ge=0)
-    phenotypes: list[str] = Field(min_length=1)
+    seed: int = Field(default=0, ge=0, le=2**63 - 1)
+    phenotypes: list[str] = Field(min_length=1, max_length=MAX_PHENOTYPES)
 
 
 class Receptor(_Strict):
     kind: Literal["gaussian", "poisson"]
-    sd: float | None = Field(default=None, gt=0)
-    gain: float | None = Field(default=None, gt=0)
+    sd: float | None = Field(default=None, ge=MIN_SCALE, le=MAX_MAGNITUDE)
+    gain: float | None = Field(default=None, gt=0, le=MAX_MAGNITUDE)
 
 
 class Senses(_Strict):
     kind: Literal["neighbours", "signal"]
-    neighbours: int | None = Field(default=None, ge=1)
-    lattice_sites: int | None = Field(default=None, ge=2)
-    distribution: str | None = None
-    parameters: dict[str, str | float] = Field(default_factory=dict)
-    edges: list[float] | None = None
+    neighbours: int | None = Field(default=None, ge=1, le=MAX_NEIGHBOURS)
+    lattice_sites: int | None = Field(default=None, ge=2, le=MAX_LATTICE_SITES)
+    distribution: str | None = Field(default=None, max_length=64)
+    parameters: dict[str, str | float] = Field(default_factory=dict, max_length=16)
+    edges: list[float] | None = Field(default=None, max_length=MAX_EDGES)
     receptor: Receptor | None = None
 
 
 class Decision(_Strict):
     objective: Literal["min-information", "max-entropy"] = "min-information"
-    beta: float | None = Field(default=None, ge=0)
-    cost_per_bit: float | None = Field(default=None, gt=0)
+    beta: float | None = Field(default=None, ge=0, le=MAX_MAGNITUDE)
+    cost_per_bit: float | None = Field(default=None, ge=1 / MAX_MAGNITUDE, le=MAX_MAGNITUDE)
     bits: float | None = Field(default=None, ge=0)
     densities: Span
     reference_density: float = Field(default=0.5, ge=0, le=1)
@@ -71,7 +90,7 @@ class Population(_Strict):
     division: dict[str, float]
     death: dict[str, float]
     crowding: dict[str, float] | None = None
-    tau: float | None = Field(default=None, gt=0)
+    tau: float | None = Field(default=None, ge=MIN_SCALE, le=MAX_MAGNITUDE)
     betas: Span
     initial_density: float = Field(default=0.5, ge=0, le=1)
 
@@ -79,17 +98,17 @@ class Population(_Strict):
 class RegimeMapSpec(_Strict):
     parameter: Literal["death_scale", "division_scale"]
     values: Span
-    beta_points: int = Field(default=40, ge=2, le=2000)
+    beta_points: int = Field(default=40, ge=2, le=2_000)
 
 
 class Exports(_Strict):
-    formats: list[str] = Field(default_factory=lambda: ["csv"])
+    formats: list[str] = Field(default_factory=lambda: ["csv"], max_length=8)
 
 
 class Study(_Strict):
     study: Meta
     senses: Senses
-    payoff: dict[str, str | float]
+    payoff: dict[str, str | float] = Field(max_length=MAX_PHENOTYPES)
     decision: Decision
     population: Population | None = None
     regime_map: RegimeMapSpec | None = None
@@ -115,12 +134,53 @@ def _show(value) -> str:
     return text if len(text) <= 60 else text[:57] + "..."
 
 
+def _numbers(study: Study):
+    """Every plain number of a study with its key path (scales and rates, not counts)."""
+    spans = [("decision.densities", study.decision.densities)]
+    for key in ("beta", "cost_per_bit", "bits", "reference_density"):
+        value = getattr(study.decision, key)
+        if value is not None:
+            yield value, f"decision.{key}"
+    for key, value in study.payoff.items():
+        if isinstance(value, float):
+            yield value, f"payoff.{key}"
+    for key, value in study.senses.parameters.items():
+        if isinstance(value, float):
+            yield value, f"senses.parameters.{key}"
+    pop = study.population
+    if pop is not None:
+        spans.append(("population.betas", pop.betas))
+        for table in ("division", "death", "crowding"):
+            for key, value in (getattr(pop, table) or {}).items():
+                yield value, f"population.{table}.{key}"
+    if study.regime_map is not None:
+        spans.append(("regime_map.values", study.regime_map.values))
+    for path, span in spans:
+        yield span.start, f"{path}.start"
+        yield span.stop, f"{path}.stop"
+
+
 def _semantic(study: Study) -> list[tuple[str, str, object]]:
     """Checks that span several keys; each as (key path, message, value)."""
     problems = []
     names = study.study.phenotypes
-    if len(set(names)) != len(names):
-        problems.append(("study.phenotypes", "phenotype names must be distinct", names))
+    for i, name in enumerate(names):
+        if not name.strip():
+            problems.append((f"study.phenotypes[{i}]", "a phenotype name must not be empty", name))
+        elif not name.isprintable():
+            problems.append((f"study.phenotypes[{i}]", "a phenotype name must be printable text "
+                             "(no control characters, tabs or line breaks)", name))
+        elif len(name) > MAX_NAME:
+            problems.append((f"study.phenotypes[{i}]", f"a phenotype name has at most {MAX_NAME} "
+                             f"characters (got {len(name)})", name))
+        elif name != name.strip():
+            problems.append((f"study.phenotypes[{i}]", "a phenotype name must not start or end with "
+                             "spaces", name))
+        elif name in names[:i]:
+            problems.append((f"study.phenotypes[{i}]", "phenotype names must be distinct", name))
+    for number, path in _numbers(study):
+        if not math.isfinite(number) or abs(number) > MAX_MAGNITUDE:
+            problems.append((path, f"must be finite with magnitude at most {MAX_MAGNITUDE:g}", number))
     routes = [k for k in ("beta", "cost_per_bit", "bits") if getattr(study.decision, k) is not None]
     if len(routes) != 1:
         problems.append(("decision", "give exactly one of beta, cost_per_bit, bits", routes or None))
@@ -204,54 +264,86 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
     return problems
 
 
+#: Densities at which ``check`` builds the environment (all of the grid up to this many).
+TRIAL_DENSITIES = 1_001
+
+
 def _trial(study: Study) -> list[tuple[str, str, object]]:
-    """Build the environment and evaluate every payoff at a few densities of the grid.
+    """Build the environment and evaluate every payoff on the density grid.
 
     Problems that only show when numbers are computed (a payoff that overflows or divides by
-    zero, distribution parameters scipy refuses, bins that miss the support) are reported
-    here with their key, so ``check`` finds them before ``run`` does.
+    zero, distribution parameters scipy refuses, bins that miss the support, a budget beyond
+    what the states allow) are reported here with their key, so ``check`` finds them before
+    ``run`` does. Payoffs are evaluated at every density of the grid and at the reference
+    density; the environment at every density up to :data:`TRIAL_DENSITIES` (evenly spread
+    beyond that).
     """
     from .._errors import InputError
+    from ..decision._budget import max_information_bits
 
     grid = study.decision.densities.values()
-    densities = sorted({float(grid[0]), float(grid[len(grid) // 2]), float(grid[-1])})
+    pick = np.unique(np.linspace(0, grid.size - 1, min(grid.size, TRIAL_DENSITIES)).round().astype(int))
+    densities = list(grid[pick]) + [study.decision.reference_density]
     environment = environment_function(study)
     problems = []
+    largest_top, where = -math.inf, None
     for rho in densities:
+        rho = float(rho)
         try:
             env = environment(rho)
-        except (InputError, ValueError, TypeError, ArithmeticError, _expressions.ExpressionError) as error:
+        except (InputError, ValueError, TypeError, ArithmeticError, OverflowError) as error:
             return [("senses", f"cannot build the environment at density {rho:g}: {error}", None)]
-        values = env.values if env.values.ndim == 1 else env.values[:, 0]
-        for name in study.study.phenotypes:
-            spec = study.payoff[name]
-            if not isinstance(spec, str):
-                continue
-            try:
-                column = np.broadcast_to(
-                    np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES),
-                                                     {"y": values, "density": np.float64(rho)}), dtype=float),
-                    values.shape,
-                )
-            except _expressions.ExpressionError as error:
-                problems.append((f"payoff.{name}", str(error), spec))
-                continue
-            bad = ~np.isfinite(column)
-            if bad.any():
-                y = int(np.argmax(bad))
-                problems.append((
-                    f"payoff.{name}",
-                    f"gives {column[y]} at density {rho:g}, y = {values[y]:g}: payoffs must be finite",
-                    spec,
-                ))
-        if problems:
-            return problems
+        if not (np.all(np.isfinite(env.probs)) and np.all(np.isfinite(env.values))):
+            return [("senses", f"the environment at density {rho:g} is not finite", None)]
+        if study.decision.bits is not None:
+            top = max_information_bits(env.probs, len(study.study.phenotypes))
+            if top > largest_top:
+                largest_top, where = top, rho
+    if study.decision.bits is not None and study.decision.bits > largest_top + 1e-12:
+        problems.append((
+            "decision.bits",
+            f"beyond the capacity: at most {largest_top:.6g} bits are possible (at density "
+            f"{where:g}; min(H(Y), log2 of the number of phenotypes)), so no density would use it",
+            study.decision.bits,
+        ))
+    env = environment(float(grid[0]))
+    values = env.values if env.values.ndim == 1 else env.values[:, 0]
+    rhos = np.concatenate([grid, [study.decision.reference_density]])
+    for name in study.study.phenotypes:
+        spec = study.payoff[name]
+        if not isinstance(spec, str):
+            continue
+        try:
+            column = np.broadcast_to(
+                np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES),
+                                                 {"y": values[:, None], "density": rhos[None, :]}),
+                           dtype=float),
+                (values.size, rhos.size),
+            )
+        except (_expressions.ExpressionError, ValueError) as error:
+            problems.append((f"payoff.{name}", str(error), spec))
+            continue
+        bad = ~np.isfinite(column) | (np.abs(column) > MAX_MAGNITUDE)
+        if bad.any():
+            y, r = np.argwhere(bad)[0]
+            problems.append((
+                f"payoff.{name}",
+                f"gives {column[y, r]} at density {rhos[r]:g}, y = {values[y]:g}: payoffs must be "
+                f"finite with magnitude at most {MAX_MAGNITUDE:g}",
+                spec,
+            ))
     return problems
+
+
+#: Largest study file read (bytes): a study is a page of TOML, not data.
+MAX_BYTES = 1_000_000
 
 
 def _validated(data: dict, source: str, prefix: str = "") -> Study:
     try:
         study = Study.model_validate(data)
+    except RecursionError:
+        raise StudyError([f"{source}: (file): nested too deeply"]) from None
     except ValidationError as error:
         lines = []
         for item in error.errors():
@@ -267,16 +359,24 @@ def _validated(data: dict, source: str, prefix: str = "") -> Study:
     return study
 
 
-def load_text(text: str, source: str) -> Study:
+def load_text(text: str, source: str, *, seed: int | None = None) -> Study:
     """Parse and validate a study given as TOML text; raise :class:`StudyError`.
 
+    This is every rule ``switchlaw run`` applies before computing, so ``switchlaw check``
+    and ``run`` always agree. ``seed`` overrides ``[study] seed`` (the ``--seed`` option).
     Each ``[[variant]]`` is validated as the whole study it makes; its problems name the
     variant (``variant[i].key``).
     """
+    if len(text) > MAX_BYTES:
+        raise StudyError([f"{source}: (file): too large ({len(text)} characters; at most {MAX_BYTES})"])
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise StudyError([f"{source}: (file): not valid TOML ({error})"]) from None
+    except RecursionError:
+        raise StudyError([f"{source}: (file): not valid TOML (nested too deeply)"]) from None
+    if seed is not None and isinstance(data.get("study"), dict):
+        data["study"]["seed"] = seed
     study = _validated(data, source)
     for i, variant in enumerate(study.variant or ()):
         _validated(_sections.variant_data(data, variant), source, prefix=f"variant[{i}].")
@@ -294,14 +394,26 @@ def variants(study: Study, text: str) -> list[tuple[str, Study]]:
     return out
 
 
-def load(path) -> tuple[Study, str]:
-    """Read and validate a study file; returns the study and its text."""
+def read(path) -> str:
+    """The text of a study file, or :class:`StudyError` (unreadable, not UTF-8, too large)."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        with open(path, "rb") as stream:
+            raw = stream.read(MAX_BYTES + 1)
     except OSError as error:
         raise StudyError([f"{path}: (file): cannot be read ({error.strerror})"]) from None
-    return load_text(text, str(path)), text
+    if len(raw) > MAX_BYTES:
+        raise StudyError([f"{path}: (file): too large (more than {MAX_BYTES} bytes)"])
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as error:
+        raise StudyError([f"{path}: (file): not UTF-8 text (byte {error.start}: {raw[error.start]:#04x})"]) from None
+
+
+def load(path, *, seed: int | None = None) -> tuple[Study, str]:
+    """Read and validate a study file; returns the study and its text."""
+    text = read(path)
+    return load_text(text, str(path), seed=seed), text
 
 
 def json_schema() -> dict:
