@@ -13,7 +13,8 @@ import numpy as np
 import pytest
 
 import switchlaw as sl
-from switchlaw.analysis._checkpoint import CheckpointWarning, checksum
+from switchlaw import CheckpointWarning
+from switchlaw.analysis._checkpoint import checksum
 
 GRID = {"x": np.linspace(0.0, 1.0, 12)}
 CALLS = []

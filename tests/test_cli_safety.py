@@ -85,6 +85,24 @@ def test_force_deletes_only_what_switchlaw_wrote(tmp_path, capsys):
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".out.")] == []
 
 
+def test_force_never_follows_a_link_out_of_the_folder(tmp_path, capsys):
+    study, out = study_file(tmp_path, FAST.replace('"divide", "roam"]', '"divide", "roam", "rest"]')
+                            .replace('roam = "1 - y / 4"', 'roam = "1 - y / 4"\nrest = 0.3')), tmp_path / "out"
+    assert run(study, out) == 0
+    assert (out / "figures" / "law-1-divide.png").is_file()
+    # The user swaps figures/ for a link to their own folder that holds a same-named file.
+    mine = tmp_path / "mine"
+    mine.mkdir()
+    (mine / "law-1-divide.png").write_bytes(b"mine")
+    for p in (out / "figures").iterdir():
+        p.unlink()
+    (out / "figures").rmdir()
+    (out / "figures").symlink_to(mine)
+    assert run(study, out, "--force") == 2  # a new output would land in the user's folder
+    assert "is not switchlaw's" in one_error_line(capsys)
+    assert (mine / "law-1-divide.png").read_bytes() == b"mine"
+
+
 def test_a_folder_switchlaw_did_not_write_is_refused_unless_asked(tmp_path, capsys):
     study, out = study_file(tmp_path), tmp_path / "thesis"
     out.mkdir()

@@ -107,6 +107,7 @@ _EXPORTS = {
     "wilson_interval": ".stochastic",
     # analysis
     "critical_sensitivity": ".analysis",
+    "CheckpointWarning": ".analysis",
     "CriticalBetas": ".analysis",
     "CriticalSensitivity": ".analysis",
     "Design": ".analysis",

@@ -118,3 +118,29 @@ def choice(value, name: str, options) -> str:
         valid = ", ".join(repr(o) for o in options)
         raise InputError(f"`{name}` must be one of {valid} (got {value!r})")
     return value
+
+
+#: Longest phenotype name: it names table columns, figure files and SBML species.
+MAX_NAME = 64
+
+
+def phenotype_names(value, name: str = "phenotypes") -> tuple:
+    """Phenotype names: text, printable, non-empty, at most :data:`MAX_NAME` characters, distinct."""
+    if isinstance(value, (str, bytes)):
+        raise InputError(f"`{name}` must be a sequence of names, not one string (got {_show(value)})")
+    try:
+        names = tuple(value)
+    except TypeError:
+        raise InputError(f"`{name}` must be a sequence of names (got {_show(value)})") from None
+    for i, item in enumerate(names):
+        if not isinstance(item, str):
+            raise InputError(f"`{name}[{i}]` must be text (got {_show(item)})")
+        if not item.strip():
+            raise InputError(f"`{name}[{i}]` must not be empty (got {item!r})")
+        if not item.isprintable():
+            raise InputError(f"`{name}[{i}]` must be printable text, no control characters (got {_show(item)})")
+        if len(item) > MAX_NAME:
+            raise InputError(f"`{name}[{i}]` has at most {MAX_NAME} characters (got {len(item)})")
+        if item in names[:i]:
+            raise InputError(f"`{name}` must be distinct; {item!r} appears twice")
+    return names

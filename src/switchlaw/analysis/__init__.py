@@ -9,6 +9,7 @@ cases (:class:`LawSummary`, :class:`RegimeSummary`, :class:`CriticalBetas`,
 the implicit function theorem; global Sobol' indices use a Saltelli design.
 """
 
+from ._checkpoint import CheckpointWarning
 from ._designs import Design, latin_hypercube, saltelli_design, sobol_points
 from ._local import (
     CriticalSensitivity,
@@ -23,6 +24,7 @@ from ._scan import scan
 from ._sobol import SobolIndices, sobol_indices
 
 __all__ = [
+    "CheckpointWarning",
     "CriticalBetas",
     "CriticalSensitivity",
     "Design",

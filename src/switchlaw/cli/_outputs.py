@@ -197,7 +197,9 @@ class OutputFolder:
                 "--force only replaces earlier switchlaw output; add --into-existing to write "
                 "into it (its files are kept)"
             )
-        if not (self.force or self.into_existing):
+        if old is not None and not self.force:
+            raise OutputExists(f"--out {target} already exists (use --force to replace it)")
+        if old is None and empty and not (self.force or self.into_existing):
             raise OutputExists(f"--out {target} already exists (use --force to replace it)")
         self._old = old or set()
 
@@ -284,7 +286,10 @@ class OutputFolder:
             os.rename(work, target)
             self.work, self._created = None, []
             return
-        old = {p for p in self._old if (target / p).is_file() or (target / p).is_symlink()}
+        real = os.path.realpath(target)
+        old = {p for p in self._old
+               if ((target / p).is_file() or (target / p).is_symlink())
+               and (os.path.realpath((target / p).parent) + os.sep).startswith(real + os.sep)}  # not outside
         for relative in sorted(new):
             if relative not in old and (os.path.lexists(target / relative)):
                 raise OutputExists(

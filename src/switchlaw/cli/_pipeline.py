@@ -308,7 +308,7 @@ def figure_stem(index: int, name: str) -> str:
     >>> figure_stem(0, "divide")
     'law-1-divide'
     >>> figure_stem(2, "../<b>évite</b>")
-    'law-3-bvitecb'
+    'law-3-bviteb'
     """
     slug = re.sub(r"[^A-Za-z0-9_-]", "", name)[:24]
     return f"law-{index + 1}" + (f"-{slug}" if slug else "")

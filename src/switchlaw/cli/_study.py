@@ -25,7 +25,7 @@ MAX_POINTS = 10_000
 #: Neighbours a cell counts (states of the sensed count: neighbours + 1).
 MAX_NEIGHBOURS = 500
 #: Sites of a finite lattice.
-MAX_LATTICE_SITES = 10**9
+MAX_LATTICE_SITES = 10**7
 #: Signal bins (edges - 1).
 MAX_EDGES = 1_001
 #: Phenotypes.
@@ -265,7 +265,7 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
 
 
 #: Densities at which ``check`` builds the environment (all of the grid up to this many).
-TRIAL_DENSITIES = 1_001
+TRIAL_DENSITIES = 201
 
 
 def _trial(study: Study) -> list[tuple[str, str, object]]:
@@ -309,6 +309,16 @@ def _trial(study: Study) -> list[tuple[str, str, object]]:
     env = environment(float(grid[0]))
     values = env.values if env.values.ndim == 1 else env.values[:, 0]
     rhos = np.concatenate([grid, [study.decision.reference_density]])
+    for key, spec in study.senses.parameters.items():
+        if isinstance(spec, str):
+            with np.errstate(all="ignore"):
+                column = np.broadcast_to(np.asarray(_expressions.evaluate(
+                    _expressions.parse(spec, PARAMETER_VARIABLES), {"density": rhos}), dtype=float), rhos.shape)
+            bad = ~np.isfinite(column) | (np.abs(column) > MAX_MAGNITUDE)
+            if bad.any():
+                r = int(np.argmax(bad))
+                problems.append((f"senses.parameters.{key}", f"gives {column[r]} at density {rhos[r]:g}: "
+                                 f"parameters must be finite with magnitude at most {MAX_MAGNITUDE:g}", spec))
     for name in study.study.phenotypes:
         spec = study.payoff[name]
         if not isinstance(spec, str):

@@ -8,7 +8,7 @@ from typing import Mapping
 import numpy as np
 
 from .._errors import InputError
-from .._validate import as_array
+from .._validate import as_array, phenotype_names
 from ._environments import Environment
 
 
@@ -57,8 +57,10 @@ def payoff_table(payoff, environment: Environment, phenotypes=None, *, where: st
     :class:`Threshold`, or any ``v -> payoff`` callable).
     """
     rows = environment.hidden_probs.size
+    if phenotypes is not None:
+        phenotypes = phenotype_names(phenotypes)
     if isinstance(payoff, Mapping):
-        names = tuple(payoff)
+        names = phenotype_names(payoff, "payoff")
         if phenotypes is not None:
             unknown = [name for name in names if name not in phenotypes]
             if unknown:

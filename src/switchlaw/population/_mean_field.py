@@ -21,7 +21,7 @@ import numpy as np
 from scipy.optimize import brentq
 
 from .._errors import InputError
-from .._validate import as_array, as_nonnegative, as_positive, choice
+from .._validate import as_array, as_nonnegative, as_positive, choice, phenotype_names
 from ..decision._costs import beta_from_cost
 from ..decision._solve import OBJECTIVES
 from ..decision._minimum_information import minimum_information_marginal
@@ -174,7 +174,9 @@ class MeanField:
         )
         self.tau = None if tau is None else as_positive(tau, "tau")
         self.objective = choice(objective, "objective", OBJECTIVES)
-        self.phenotypes = phenotypes
+        self.phenotypes = None if phenotypes is None else phenotype_names(phenotypes)
+        if isinstance(payoff, dict):
+            phenotype_names(payoff, "payoff")
         self._cache: OrderedDict = OrderedDict()
         self._last_marginal = None
 
