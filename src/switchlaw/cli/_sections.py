@@ -28,7 +28,7 @@ class Betas(_Strict):
 class Extinction(_Strict):
     """Extinction risk of a small founding population against its size."""
 
-    sites: int = Field(ge=4, le=100_000, description="carrying capacity K in cells; density is n / K")
+    sites: int = Field(ge=4, le=2_000, description="carrying capacity K in cells; density is n / K (the law is solved once per size)")
     founders: list[int] = Field(min_length=1, max_length=200, description="initial numbers of cells, increasing")
     established: int | None = Field(default=None, ge=2, description="size counted as established (default K / 2)")
     betas: list[float] = Field(default_factory=list, max_length=20, description="betas besides the study's")
@@ -43,8 +43,8 @@ class Lattice(_Strict):
     rows: int = Field(default=24, ge=4, le=512)
     columns: int = Field(default=24, ge=3, le=512)
     initial_density: float = Field(default=0.3, gt=0, le=1)
-    t_end: float = Field(gt=0)
-    tau: float = Field(default=0.5, gt=0, description="decision timescale (time units)")
+    t_end: float = Field(gt=0, le=10_000)
+    tau: float = Field(default=0.5, ge=1e-6, le=1e6, description="decision timescale (time units)")
     motility: dict[str, float] = Field(default_factory=dict, description="per-phenotype move rate (per unit time)")
     replicates: int = Field(default=4, ge=1, le=256)
     snapshots: int = Field(default=3, ge=1, le=8)
@@ -88,7 +88,7 @@ class Schedule(_Strict):
 
     stress: Stress
     plans: list[Plan] = Field(min_length=1, max_length=12)
-    t_end: float = Field(gt=0)
+    t_end: float = Field(gt=0, le=1e6)
     tolerant: str | None = Field(default=None, description="phenotype whose fraction is reported")
     regrowth_density: float = Field(gt=0, le=1)
     initial_density: float | None = Field(default=None, gt=0, le=1)
