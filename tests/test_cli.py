@@ -118,6 +118,22 @@ def test_dormancy_demo_changes_regime(tmp_path):
     assert regimes[0] == "extinction" and regimes[-1] == "monostable"
 
 
+def test_pulsed_demo_compares_schedules_with_the_caution(tmp_path):
+    out = tmp_path / "pulsed"
+    assert main(["demo", "pulsed", "--out", str(out), "--quiet"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    plans = summary["schedule"]["plans"]
+    assert [p["total_stress"] for p in plans] == [6.0, 6.0, 6.0]  # same total stress, different pulses
+    assert len({p["final_density"] for p in plans}) == 3
+    assert all(len(p["tolerant_fraction_after_stress"]) == p["cycles"] for p in plans)
+    assert summary["variants"][0]["name"] == "noisier receptor"
+    assert summary["fluctuating"]["best_net_growth"] <= summary["fluctuating"]["optimal_growth_with_cue"]
+    report = (out / "report.html").read_text()
+    schedule = report[report.index('<section id="schedule">'):]
+    schedule = schedule[:schedule.index("</section>")]
+    assert "Research use only" in schedule and "not a medical device" in schedule.lower()
+
+
 def test_a_failing_run_leaves_nothing_behind(tmp_path, capsys):
     study = tmp_path / "nan.toml"
     study.write_text(GOOD.replace('roam = "1 - y / 6"', 'roam = "log(y - 10)"'), encoding="utf-8")
@@ -130,7 +146,7 @@ def test_a_failing_run_leaves_nothing_behind(tmp_path, capsys):
 
 def test_unknown_demo_and_no_command(capsys):
     assert main(["demo", "nowhere", "--out", "x"]) == 2
-    assert "unknown demo 'nowhere' (valid: colony, dormancy)" in capsys.readouterr().err
+    assert "unknown demo 'nowhere' (valid: colony, dormancy, pulsed)" in capsys.readouterr().err
 
 
 def test_help_imports_nothing_heavy():

@@ -171,11 +171,17 @@ def plot_regime_map(regime_map, *, ax=None):
     cmap = ListedColormap([REGIME_COLOURS[name] for name in REGIMES])
     ax.pcolormesh(regime_map.betas, regime_map.values, regime_map.codes, cmap=cmap,
                   vmin=-0.5, vmax=len(REGIMES) - 0.5, shading="nearest")
-    for kind, marker in (("transcritical", "s"), ("fold", "o")):
+    for kind, marker, style in (("transcritical", "s", "-"), ("fold", "o", "--")):
         xs = [c.beta for row in regime_map.critical for c in row if c.kind == kind]
         ys = [v for v, row in zip(regime_map.values, regime_map.critical) for c in row if c.kind == kind]
         if xs:
-            ax.plot(xs, ys, marker, ms=2.5, color="k", label=kind)
+            # The boundaries themselves: the k-th critical beta of this kind in each row, joined
+            # from row to row (broken where a row has fewer), over the colour cells.
+            per_row = [sorted(c.beta for c in row if c.kind == kind) for row in regime_map.critical]
+            for k in range(max(len(r) for r in per_row)):
+                curve = [r[k] if len(r) > k else np.nan for r in per_row]
+                ax.plot(curve, regime_map.values, style, color="k", lw=1.2)
+            ax.plot(xs, ys, marker, ms=2.5, color="k", label=f"{kind} (computed)")
     handles = [Patch(color=REGIME_COLOURS[name], label=name) for name in REGIMES]
     ax.legend(handles=handles + ax.get_legend_handles_labels()[0], frameon=True, fontsize=8,
               loc="upper right")

@@ -14,6 +14,7 @@ from pathlib import Path
 DEMOS = {
     "colony": "A colony on a hexagonal lattice: divide or roam by occupied neighbours (invented).",
     "dormancy": "Microbes choosing growth or dormancy under a noisy stress cue (invented).",
+    "pulsed": "Cells growing or tolerating a stress that comes in pulses, on schedules (invented).",
 }
 
 
@@ -56,6 +57,15 @@ def _parser() -> argparse.ArgumentParser:
         sub.add_argument("--jobs", type=int, default=None, help="local processes for the beta scan")
         sub.add_argument("--scheduler", default=None,
                          help="Dask scheduler address (tcp://host:port) or scheduler file for the beta scan")
+        sub.add_argument("--only", default=None, metavar="STAGE[,STAGE]",
+                         help="run only these stages (law always runs): law, population, regime_map, "
+                         "extinction, lattice, fluctuating, schedule, sensitivity, variants")
+        sub.add_argument("--skip", default=None, metavar="STAGE[,STAGE]", help="skip these stages")
+    compare = commands.add_parser("compare", help="a side-by-side report of two finished runs")
+    compare.add_argument("first", help="output folder of one run")
+    compare.add_argument("second", help="output folder of another run")
+    compare.add_argument("--out", required=True, help="output folder for report.html (must not exist unless --force)")
+    compare.add_argument("--force", action="store_true", help="replace an earlier compare folder")
     demos = commands.add_parser("demos", help="list the built-in studies")
     demos.set_defaults()
     show = commands.add_parser("show-demo", help="print a built-in study file")
@@ -101,10 +111,16 @@ def _run(text: str, source: str, args) -> int:
     if refused and not args.yes:
         return _fail(f"{source}: {refused}; add --yes to run it anyway")
     from ._pipeline import run, write_outputs
+    from ._stages import StageError, select
 
     try:
+        stages = select(study, args.only, args.skip)
+    except StageError as error:
+        return _fail(str(error))
+    try:
         with OutputFolder(args.out, force=args.force, into_existing=args.into_existing) as folder:
-            results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler)
+            results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler,
+                          stages=stages)
             written = write_outputs(results, folder.work)
             folder.commit()
             out = folder.target
@@ -153,6 +169,10 @@ def main(argv=None) -> int:
         except KeyError:
             return _fail(f"unknown demo {args.name!r} (valid: {', '.join(DEMOS)})")
         return _run(text, f"demo:{args.name}", args)
+    if args.command == "compare":
+        from ._compare import compare
+
+        return compare(args.first, args.second, args.out, force=args.force)
     if args.command == "demos":
         for name, text in DEMOS.items():
             print(f"{name:10s} {text}")

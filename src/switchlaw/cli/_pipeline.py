@@ -61,6 +61,9 @@ class Results:
     scan: object = None
     regime_map: object = None
     timings: dict = field(default_factory=dict)
+    stages: set = field(default_factory=set)
+    extras: dict = field(default_factory=dict)
+    variants: list = field(default_factory=list)
 
 
 def _route(study: Study) -> dict:
@@ -73,16 +76,23 @@ def _route(study: Study) -> dict:
 
 
 def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None,
-        scheduler: str | None = None) -> Results:
+        scheduler: str | None = None, stages: set | None = None) -> Results:
     """Compute everything the study asks for (no files written here).
 
     ``jobs`` (local processes) or ``scheduler`` (a Dask scheduler address or file) spread the
-    scan over beta; results are identical whatever runs them.
+    scan over beta; results are identical whatever runs them. ``stages`` (from
+    :func:`._stages.select`) limits the run to some stages; by default every stage the
+    study has runs.
     """
     import switchlaw as sl
 
-    stages = 2 + (2 if study.population else 0) + (1 if study.regime_map else 0)
-    progress = Progress(stages, quiet)
+    from . import _stages
+
+    chosen = _stages.select(study) if stages is None else set(stages)
+    extra = [s for s in _stages.STAGES[3:] if s in chosen]
+    count = 2 + (2 if study.population and "population" in chosen else 0) + (
+        1 if study.regime_map and "regime_map" in chosen else 0) + len(extra)
+    progress = Progress(count, quiet)
     payoff = payoff_functions(study)
     environment = environment_function(study)
     names = study.study.phenotypes
@@ -103,8 +113,9 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         centre = float(np.nanmedian(law.betas[np.isfinite(law.betas)])) if np.isfinite(law.betas).any() else 1.0
         betas = np.linspace(0.0, 4.0 * max(centre, 1e-3), 81)
     curve = sl.tradeoff(table, env, betas, objective=study.decision.objective)
-    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho)
+    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho, stages=chosen)
     if study.population is None:
+        _run_extras(results, payoff, environment, progress, jobs=jobs, scheduler=scheduler, quiet=quiet)
         return results
 
     pop = study.population
@@ -116,23 +127,24 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         tau=pop.tau, objective=study.decision.objective, phenotypes=names,
     )
     results.model = model
-    progress.stage("population regimes along beta (scan)")
-    grid = pop.betas.values()
-    executor = "serial"
-    if scheduler is not None:
-        executor = scheduler
-    elif jobs is not None and jobs > 1:
-        executor = "processes"
-    dataset = sl.scan(
-        sl.RegimeSummary(model), {"beta": grid}, executor=executor,
-        jobs=jobs if executor == "processes" else None, seed=study.study.seed,
-        progress=not quiet and sys.stderr.isatty(), study=study.study.title,
-    )
-    dataset.attrs["caution"] = CAUTION
-    results.scan = dataset
-    progress.stage("continuation of equilibrium branches in beta")
-    results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
-    if study.regime_map is not None:
+    if "population" in chosen:
+        progress.stage("population regimes along beta (scan)")
+        grid = pop.betas.values()
+        executor = "serial"
+        if scheduler is not None:
+            executor = scheduler
+        elif jobs is not None and jobs > 1:
+            executor = "processes"
+        dataset = sl.scan(
+            sl.RegimeSummary(model), {"beta": grid}, executor=executor,
+            jobs=jobs if executor == "processes" else None, seed=study.study.seed,
+            progress=not quiet and sys.stderr.isatty(), study=study.study.title,
+        )
+        dataset.attrs["caution"] = CAUTION
+        results.scan = dataset
+        progress.stage("continuation of equilibrium branches in beta")
+        results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
+    if study.regime_map is not None and "regime_map" in chosen:
         spec = study.regime_map
         progress.stage(f"regime map over beta x {spec.parameter}")
         results.regime_map = model.regime_map(
@@ -140,7 +152,38 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
             spec.values.values(),
             on_row=lambda done, total: progress.fraction(done, total, spec.parameter),
         )
+    _run_extras(results, payoff, environment, progress, jobs=jobs, scheduler=scheduler, quiet=quiet)
     return results
+
+
+def _run_extras(results, payoff, environment, progress, *, jobs, scheduler, quiet) -> None:
+    """The optional stages of :mod:`._stages` that were chosen, then each variant."""
+    from . import _stages
+    from ._study import variants
+
+    study, chosen, extras = results.study, results.stages, results.extras
+    if "extinction" in chosen:
+        progress.stage("extinction risk against founder size")
+        extras["extinction"] = _stages.run_extinction(study, results.model, payoff, environment)
+    if "lattice" in chosen:
+        progress.stage("lattice agents with the law")
+        extras["lattice"] = _stages.run_lattice(study, payoff, environment)
+    if "fluctuating" in chosen:
+        progress.stage("long-run growth in the fluctuating environment")
+        extras["fluctuating"] = _stages.run_fluctuating(study)
+    if "schedule" in chosen:
+        progress.stage("mean-field model under the stress schedules")
+        extras["schedule"] = _stages.run_schedule(study, results.model)
+    if "sensitivity" in chosen:
+        progress.stage("local and Sobol' sensitivities")
+        extras["sensitivity"] = _stages.run_sensitivity(study, results.model, results.diagram, jobs=jobs,
+                                                        scheduler=scheduler, quiet=quiet)
+    if "variants" in chosen:
+        for name, variant in variants(study, results.text):
+            progress.stage(f"variant {name!r}: every stage")
+            inner = (chosen - {"variants"}) & _stages.select(variant)
+            results.variants.append((name, run(variant, results.text, quiet=True, jobs=jobs,
+                                               scheduler=scheduler, stages=inner)))
 
 
 def _finite(value):
@@ -228,6 +271,15 @@ def summary(results: Results) -> dict:
             ],
             "continuation_complete": results.diagram.complete,
         }
+    from . import _stages
+
+    out.update(_stages.summaries(results.extras, law.phenotypes))
+    if results.variants:
+        out["variants"] = [{"name": name, **{k: v for k, v in summary(inner).items()
+                                             if k not in ("switchlaw_version", "caution", "study")}}
+                           for name, inner in results.variants]
+    out["verdict"] = _stages.verdict(out, law.phenotypes)
+    out["stages"] = [s for s in _stages.STAGES if s in results.stages]
     if results.regime_map is not None:
         rm = results.regime_map
         out["regime_map"] = {
@@ -306,6 +358,7 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
         sl.plot_regime_map(results.regime_map, ax=ax)
         save(fig, "regime_map", "regime_map")
 
+    extra = _extra_figures(results, save, made)
     data = summary(results)
     (folder / "summary.json").write_text(json.dumps(data, indent=2, allow_nan=False) + "\n", encoding="utf-8")
     (folder / "study.toml").write_text(results.text, encoding="utf-8")
@@ -329,6 +382,31 @@ def write_outputs(results: Results, folder: Path) -> list[str]:
                   initial=results.study.population.initial_density, study=study_record,
                   time_unit=time_unit or "second")
         written.append("model.sbml")
-    (folder / "report.html").write_text(render(results, data, made), encoding="utf-8")
+    (folder / "report.html").write_text(render(results, data, made, extra), encoding="utf-8")
     written.append("report.html")
     return written + [f"figures/{p.name}" for p in sorted(figures.iterdir())]
+
+
+def _extra_figures(results: Results, save, saved: list) -> dict:
+    """Save the optional stages' figures; name -> (png path, caption)."""
+    from . import _figures
+
+    extras, made = results.extras, []
+    names = list(results.law.phenotypes)
+    if "extinction" in extras:
+        made += _figures.extinction(extras["extinction"])
+    if "lattice" in extras:
+        made += _figures.lattice(extras["lattice"])
+    if "fluctuating" in extras:
+        made += _figures.fluctuating(extras["fluctuating"])
+    if "schedule" in extras:
+        made += _figures.schedule(extras["schedule"], names, results.study.schedule.treatment)
+    if "sensitivity" in extras:
+        made += _figures.sensitivity(extras["sensitivity"])
+    if results.variants:
+        made += _figures.variants(results.diagram, results.variants)
+    out = {}
+    for name, fig, caption in made:
+        save(fig, name, name)
+        out[name] = (saved[-1].path, caption)
+    return out

@@ -129,18 +129,25 @@ def _find(figures: list, kind: str):
     return next(f for f in figures if f.kind == kind)
 
 
-def render(results, data: dict, figures) -> str:
-    """The report as one HTML string.
+def render(results, data: dict, figures, extra: dict | None = None) -> str:
+    """The report as one HTML string: the verdict first, then the figures, the study file last.
 
     ``data`` is the summary (``summary.json``); ``figures`` lists the figures written, each
     with ``kind`` (``law``, ``tradeoff``, ``bifurcation``, ``regime_map``), ``label`` (for a
-    law map, the phenotype) and ``path`` (its PNG).
+    law map, the phenotype) and ``path`` (its PNG); ``extra`` maps the optional stages' figure
+    names to ``(png path, caption)`` (see ``_report_parts``).
     """
+    from markupsafe import Markup
+
+    from ._report_parts import STYLE, sections_html, verdict_html
+
     figures = list(figures)
     meta = results.study.study
     return _template().render(
-        style=_STYLE, title=meta.title, notes=meta.notes, seed=meta.seed,
+        style=_STYLE + STYLE, title=meta.title, notes=meta.notes, seed=meta.seed,
         version=data["switchlaw_version"], caution=data["caution"], study_text=results.text,
         law=_law(results, figures), curve=_curve(results, figures),
         population=_population(results, data, figures), regime_map=_regime_map(results, figures),
+        # Both parts come from autoescaped templates of their own: safe to insert as markup.
+        verdict=Markup(verdict_html(data)), sections=Markup(sections_html(results, data, extra or {})),
     )

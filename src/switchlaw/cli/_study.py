@@ -14,7 +14,7 @@ from typing import Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from . import _expressions
+from . import _expressions, _sections
 
 PAYOFF_VARIABLES = ("y", "density")
 PARAMETER_VARIABLES = ("density",)
@@ -115,6 +115,12 @@ class Study(_Strict):
     population: Population | None = None
     regime_map: RegimeMapSpec | None = None
     exports: Exports = Field(default_factory=Exports)
+    extinction: _sections.Extinction | None = None
+    lattice: _sections.Lattice | None = None
+    fluctuating: _sections.Fluctuating | None = None
+    schedule: _sections.Schedule | None = None
+    sensitivity: _sections.Sensitivity | None = None
+    variant: list[_sections.Variant] | None = None
 
 
 class StudyError(ValueError):
@@ -251,6 +257,7 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
         span = study.regime_map.values
         if not (0 < span.start < span.stop):
             problems.append(("regime_map.values", "scales must satisfy 0 < start < stop", [span.start, span.stop]))
+    problems += _sections.semantic(study)
     from ._outputs import EXPORT_FORMATS
 
     for i, name in enumerate(study.exports.formats):
@@ -344,11 +351,33 @@ def _trial(study: Study) -> list[tuple[str, str, object]]:
 MAX_BYTES = 1_000_000
 
 
+def _validated(data: dict, source: str, prefix: str = "") -> Study:
+    try:
+        study = Study.model_validate(data)
+    except RecursionError:
+        raise StudyError([f"{source}: (file): nested too deeply"]) from None
+    except ValidationError as error:
+        lines = []
+        for item in error.errors():
+            path = ".".join(str(p) if not isinstance(p, int) else f"[{p}]" for p in item["loc"]).replace(".[", "[")
+            lines.append(f"{source}: {prefix}{path or '(top level)'}: {item['msg']} (got {_show(item.get('input'))})")
+        raise StudyError(lines) from None
+    problems = _semantic(study)
+    if not problems:
+        problems = _trial(study)
+    if problems:
+        raise StudyError([f"{source}: {prefix}{path}: {message} (got {_show(value)})"
+                          for path, message, value in problems])
+    return study
+
+
 def load_text(text: str, source: str, *, seed: int | None = None) -> Study:
     """Parse and validate a study given as TOML text; raise :class:`StudyError`.
 
     This is every rule ``switchlaw run`` applies before computing, so ``switchlaw check``
     and ``run`` always agree. ``seed`` overrides ``[study] seed`` (the ``--seed`` option).
+    Each ``[[variant]]`` is validated as the whole study it makes; its problems name the
+    variant (``variant[i].key``).
     """
     if len(text) > MAX_BYTES:
         raise StudyError([f"{source}: (file): too large ({len(text)} characters; at most {MAX_BYTES})"])
@@ -360,22 +389,21 @@ def load_text(text: str, source: str, *, seed: int | None = None) -> Study:
         raise StudyError([f"{source}: (file): not valid TOML (nested too deeply)"]) from None
     if seed is not None and isinstance(data.get("study"), dict):
         data["study"]["seed"] = seed
-    try:
-        study = Study.model_validate(data)
-    except RecursionError:
-        raise StudyError([f"{source}: (file): nested too deeply"]) from None
-    except ValidationError as error:
-        lines = []
-        for item in error.errors():
-            path = ".".join(str(p) if not isinstance(p, int) else f"[{p}]" for p in item["loc"]).replace(".[", "[")
-            lines.append(f"{source}: {path or '(top level)'}: {item['msg']} (got {_show(item.get('input'))})")
-        raise StudyError(lines) from None
-    problems = _semantic(study)
-    if not problems:
-        problems = _trial(study)
-    if problems:
-        raise StudyError([f"{source}: {path}: {message} (got {_show(value)})" for path, message, value in problems])
+    study = _validated(data, source)
+    for i, variant in enumerate(study.variant or ()):
+        _validated(_sections.variant_data(data, variant), source, prefix=f"variant[{i}].")
     return study
+
+
+def variants(study: Study, text: str) -> list[tuple[str, Study]]:
+    """``(name, study)`` for each ``[[variant]]`` of a validated study (seed carried over)."""
+    data = tomllib.loads(text)
+    out = []
+    for variant in study.variant or ():
+        one = Study.model_validate(_sections.variant_data(data, variant))
+        one.study.seed = study.study.seed
+        out.append((variant.name, one))
+    return out
 
 
 def read(path) -> str:
