@@ -125,7 +125,7 @@ def test_two_swapped_batches_are_detected(checkpoint):
 def test_batches_of_another_seed_are_not_used(tmp_path, checkpoint):
     # A checkpoint written with seed 7 whose manifest was edited to say seed 8: the batches
     # carry the hash of the scan that wrote them, so none of them is taken.
-    manifest = json.loads((checkpoint / "manifest.json").read_text())
+    manifest = json.loads((checkpoint / "manifest.json").read_text(encoding="utf-8"))
     manifest["fingerprint"]["seed"] = 8
     (checkpoint / "manifest.json").write_text(json.dumps(manifest))
     CALLS.clear()

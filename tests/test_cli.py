@@ -97,12 +97,12 @@ def test_demo_writes_everything_and_refuses_to_overwrite(tmp_path, capsys):
     assert main(["demo", "colony", "--out", str(out), "--quiet"]) == 0
     names = {p.name for p in out.iterdir()}
     assert {"summary.json", "report.html", "figures", "law.csv", "law.nc", "scan.nc", "study.toml"} <= names
-    summary = json.loads((out / "summary.json").read_text())
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     kinds = [c["kind"] for c in summary["population"]["critical_betas"]]
     assert "transcritical" in kinds and "fold" in kinds
     regimes = {r["regime"] for r in summary["population"]["regimes"]}
     assert {"strong-allee", "extinction"} <= regimes  # a regime change in beta
-    report = (out / "report.html").read_text()
+    report = (out / "report.html").read_text(encoding="utf-8")
     assert "not a medical device" in report and report.count("data:image/png;base64,") >= 4
     assert (out / "figures" / "bifurcation.svg").exists()
     assert main(["demo", "colony", "--out", str(out), "--quiet"]) == 2
@@ -113,7 +113,7 @@ def test_demo_writes_everything_and_refuses_to_overwrite(tmp_path, capsys):
 def test_dormancy_demo_changes_regime(tmp_path):
     out = tmp_path / "dormancy"
     assert main(["demo", "dormancy", "--out", str(out), "--quiet"]) == 0
-    summary = json.loads((out / "summary.json").read_text())
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     regimes = [r["regime"] for r in summary["population"]["regimes"]]
     assert regimes[0] == "extinction" and regimes[-1] == "monostable"
 
@@ -121,14 +121,14 @@ def test_dormancy_demo_changes_regime(tmp_path):
 def test_pulsed_demo_compares_schedules_with_the_caution(tmp_path):
     out = tmp_path / "pulsed"
     assert main(["demo", "pulsed", "--out", str(out), "--quiet"]) == 0
-    summary = json.loads((out / "summary.json").read_text())
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     plans = summary["schedule"]["plans"]
     assert [p["total_stress"] for p in plans] == [6.0, 6.0, 6.0]  # same total stress, different pulses
     assert len({p["final_density"] for p in plans}) == 3
     assert all(len(p["tolerant_fraction_after_stress"]) == p["cycles"] for p in plans)
     assert summary["variants"][0]["name"] == "noisier receptor"
     assert summary["fluctuating"]["best_net_growth"] <= summary["fluctuating"]["optimal_growth_with_cue"]
-    report = (out / "report.html").read_text()
+    report = (out / "report.html").read_text(encoding="utf-8")
     schedule = report[report.index('<section id="schedule">'):]
     schedule = schedule[:schedule.index("</section>")]
     assert "Research use only" in schedule and "not a medical device" in schedule.lower()

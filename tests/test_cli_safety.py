@@ -66,7 +66,7 @@ def one_error_line(capsys) -> str:
 def test_force_deletes_only_what_switchlaw_wrote(tmp_path, capsys):
     study, out = study_file(tmp_path), tmp_path / "out"
     assert run(study, out) == 0
-    manifest = json.loads((out / MARKER).read_text())
+    manifest = json.loads((out / MARKER).read_text(encoding="utf-8"))
     assert "summary.json" in manifest["files"] and "report.html" in manifest["files"]
     (out / "my-notes.txt").write_text("mine")
     (out / "figures" / "my-sketch.png").write_bytes(b"mine")
@@ -76,12 +76,12 @@ def test_force_deletes_only_what_switchlaw_wrote(tmp_path, capsys):
     (out / "law.nc").write_bytes(b"old output")
     (out / MARKER).write_text(json.dumps({**manifest, "files": manifest["files"] + ["law.nc"]}))
     assert run(study, out, "--force") == 0
-    assert (out / "my-notes.txt").read_text() == "mine"
+    assert (out / "my-notes.txt").read_text(encoding="utf-8") == "mine"
     assert (out / "figures" / "my-sketch.png").read_bytes() == b"mine"
-    assert (out / "extra" / "data.csv").read_text() == "mine"
+    assert (out / "extra" / "data.csv").read_text(encoding="utf-8") == "mine"
     assert not (out / "law.nc").exists()
     assert (out / "summary.json").is_file()
-    assert "my-notes.txt" not in json.loads((out / MARKER).read_text())["files"]
+    assert "my-notes.txt" not in json.loads((out / MARKER).read_text(encoding="utf-8"))["files"]
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".out.")] == []
 
 
@@ -112,11 +112,11 @@ def test_a_folder_switchlaw_did_not_write_is_refused_unless_asked(tmp_path, caps
     assert "was not written by switchlaw" in line and "--into-existing" in line
     assert sorted(p.name for p in out.iterdir()) == ["chapter1.tex"]
     assert run(study, out, "--into-existing") == 0
-    assert (out / "chapter1.tex").read_text() == "keep" and (out / "report.html").is_file()
-    assert "chapter1.tex" not in json.loads((out / MARKER).read_text())["files"]
+    assert (out / "chapter1.tex").read_text(encoding="utf-8") == "keep" and (out / "report.html").is_file()
+    assert "chapter1.tex" not in json.loads((out / MARKER).read_text(encoding="utf-8"))["files"]
     # Now it holds a manifest: --force replaces switchlaw's files and keeps the chapter.
     assert run(study, out, "--force") == 0
-    assert (out / "chapter1.tex").read_text() == "keep"
+    assert (out / "chapter1.tex").read_text(encoding="utf-8") == "keep"
 
 
 def test_a_user_file_with_an_output_name_is_never_overwritten(tmp_path, capsys):
@@ -126,7 +126,7 @@ def test_a_user_file_with_an_output_name_is_never_overwritten(tmp_path, capsys):
     assert run(study, out, "--into-existing") == 2
     assert "is not switchlaw's" in one_error_line(capsys)
     assert sorted(p.name for p in out.iterdir()) == ["summary.json"]
-    assert (out / "summary.json").read_text() == "the user's own summary"
+    assert (out / "summary.json").read_text(encoding="utf-8") == "the user's own summary"
     assert not any(p.name.startswith(".shared.") for p in tmp_path.iterdir())
 
 
@@ -139,7 +139,7 @@ def test_a_second_run_to_the_same_out_is_refused(tmp_path, capsys):
         line = one_error_line(capsys)
         assert "being written by another switchlaw run" in line and str(os.getpid()) in line
         first.commit()
-    assert json.loads((out / "summary.json").read_text()) == {}  # the first run's result stands
+    assert json.loads((out / "summary.json").read_text(encoding="utf-8")) == {}  # the first run's result stands
     assert not (tmp_path / ".out.switchlaw-lock").exists()
 
 
@@ -300,7 +300,7 @@ def markup_study():
 def test_markup_in_a_study_is_escaped_and_figure_names_are_safe(tmp_path):
     out = tmp_path / "out"
     assert run(study_file(tmp_path, markup_study()), out) == 0
-    report = (out / "report.html").read_text()
+    report = (out / "report.html").read_text(encoding="utf-8")
     assert "<script" not in report.lower() and "<svg onload" not in report and "<img src=x" not in report
     assert "&lt;script&gt;document.title=&#34;pwned&#34;&lt;/script&gt;Markup &lt;b&gt;title&lt;/b&gt;" in report
     assert "&lt;svg onload=alert(1)&gt;" in report

@@ -144,7 +144,7 @@ def test_budget_law_keeps_infinite_beta(budget_law, tmp_path):
     # Precondition of the round trip above: this law has +inf betas where the budget is slack.
     assert np.isinf(budget_law.betas).any() and np.isfinite(budget_law.betas).any()
     export(budget_law, tmp_path / "law.json")
-    document = json.loads((tmp_path / "law.json").read_text())
+    document = json.loads((tmp_path / "law.json").read_text(encoding="utf-8"))
     assert [b is None for b in document["beta"]] == list(np.isinf(budget_law.betas))
 
 
@@ -179,7 +179,7 @@ def test_netcdf_is_read_by_h5py_with_cf_attributes(law, tmp_path):
 
 def test_csv_is_long_format_read_by_the_csv_module(law, tmp_path):
     export(law, tmp_path / "law.csv")
-    with open(tmp_path / "law.csv", newline="") as stream:
+    with open(tmp_path / "law.csv", newline="", encoding="utf-8") as stream:
         rows = list(csv.DictReader(stream))
     k, m, n = law.table.shape
     assert len(rows) == k * m * n
@@ -188,7 +188,7 @@ def test_csv_is_long_format_read_by_the_csv_module(law, tmp_path):
     np.testing.assert_array_equal(q, law.table)
     # A policy's rows are conditional distributions: they sum to one (Cover & Thomas ch. 2).
     np.testing.assert_allclose(q.sum(axis=2), 1.0, atol=1e-12)
-    sidecar = json.loads((tmp_path / "law.csv.json").read_text())
+    sidecar = json.loads((tmp_path / "law.csv.json").read_text(encoding="utf-8"))
     assert sidecar["metadata"]["objective"] == "min-information" and sidecar["beta"] == [3.0] * k
     assert sidecar["units"]["information_bits"] == "bit"
 
@@ -196,15 +196,15 @@ def test_csv_is_long_format_read_by_the_csv_module(law, tmp_path):
 def test_json_documents_validate_against_the_shipped_schema(law, tmp_path):
     import jsonschema
 
-    schema = json.loads(importlib.resources.files("switchlaw.exporters").joinpath("law.schema.json").read_text())
+    schema = json.loads(importlib.resources.files("switchlaw.exporters").joinpath("law.schema.json").read_text(encoding="utf-8"))
     jsonschema.Draft202012Validator.check_schema(schema)
     export(law, tmp_path / "law.json")
     export(law, tmp_path / "law.csv")
     export(law, tmp_path / "steps.csv", format="step-table", dt=0.1, tau=2.0, time_unit="hour")
     for name in ("law.json", "law.csv.json", "steps.csv.json"):
-        jsonschema.validate(json.loads((tmp_path / name).read_text()), schema,
+        jsonschema.validate(json.loads((tmp_path / name).read_text(encoding="utf-8")), schema,
                             cls=jsonschema.Draft202012Validator)
-    broken = json.loads((tmp_path / "law.json").read_text())
+    broken = json.loads((tmp_path / "law.json").read_text(encoding="utf-8"))
     del broken["probability"]
     with pytest.raises(jsonschema.ValidationError):
         jsonschema.validate(broken, schema, cls=jsonschema.Draft202012Validator)
@@ -212,7 +212,7 @@ def test_json_documents_validate_against_the_shipped_schema(law, tmp_path):
 
 def test_edited_table_fails_its_hash(law, tmp_path):
     export(law, tmp_path / "law.csv")
-    lines = (tmp_path / "law.csv").read_text().splitlines()
+    lines = (tmp_path / "law.csv").read_text(encoding="utf-8").splitlines()
     fields = lines[-1].split(",")
     fields[-2] = repr(float(fields[-2]) + 1e-9)
     (tmp_path / "law.csv").write_text("\n".join(lines[:-1] + [",".join(fields)]) + "\n")
@@ -238,7 +238,7 @@ def test_step_table_matches_the_matrix_exponential(law, tmp_path):
             generator = (np.outer(np.ones(2), q) - np.eye(2)) / tau
             np.testing.assert_allclose(steps[k, y], linalg.expm(dt * generator), rtol=1e-12, atol=1e-15)
             np.testing.assert_allclose(steps[k, y].sum(axis=1), 1.0, atol=1e-15)
-    sidecar = json.loads((tmp_path / "steps.csv.json").read_text())
+    sidecar = json.loads((tmp_path / "steps.csv.json").read_text(encoding="utf-8"))
     assert sidecar["step"]["decision_probability"] == -math.expm1(-dt / tau)
 
 
@@ -284,7 +284,7 @@ def sbml_problems(text):
 def test_sbml_passes_libsbml_checks_with_units_and_exact_numbers(max_entropy_law, tau, tmp_path):
     done = export(mean_field(tau), tmp_path / "model.xml", law=max_entropy_law, initial=0.5,
                      time_unit="hour", study={"scenario": "invented"})
-    text = (tmp_path / "model.xml").read_text()
+    text = (tmp_path / "model.xml").read_text(encoding="utf-8")
     document, problems = sbml_problems(text)
     assert problems == []  # no errors and no warnings, units included
     assert (document.getLevel(), document.getVersion()) == (3, 2)
@@ -330,7 +330,7 @@ def roadrunner_run(text, t_end, points):
 @pytest.mark.parametrize("tau", [None, 2.0])
 def test_roadrunner_trajectory_matches_switchlaw(max_entropy_law, tau, tmp_path):
     export(mean_field(tau), tmp_path / "model.xml", law=max_entropy_law, initial=0.5)
-    runner, result = roadrunner_run((tmp_path / "model.xml").read_text(), 40.0, 201)
+    runner, result = roadrunner_run((tmp_path / "model.xml").read_text(encoding="utf-8"), 40.0, 201)
     reference = Interpolated(max_entropy_law, division=[1.0, 0.0], death=[0.2, 0.2], crowding=[0.1, 0.0],
                              tau=tau, objective="max-entropy").trajectory(4.0, 0.5, 40.0, points=201, rtol=1e-10)
     expected = reference.density[:, None] if tau is None else reference.compartments
@@ -353,7 +353,7 @@ def test_roadrunner_trajectory_matches_switchlaw(max_entropy_law, tau, tmp_path)
 def test_sbml_closed_form_fractions_match_switchlaw(max_entropy_law, tmp_path):
     export(mean_field(None), tmp_path / "model.xml", law=max_entropy_law, initial=0.5,
               fractions="logistic", tolerance=0.05)
-    text = (tmp_path / "model.xml").read_text()
+    text = (tmp_path / "model.xml").read_text(encoding="utf-8")
     assert sbml_problems(text)[1] == []
     assert "piecewise" not in text and "<exp/>" in text
     # The same least-squares fit of f(rho), built from public pieces: the grid fractions as a
@@ -387,7 +387,7 @@ def test_sbml_table_converges_to_the_exact_model_at_second_order(tmp_path):
         law = sl.derive_law(GROW_WHEN_CROWDED, hexagonal, densities=np.linspace(0, 1, points), beta=4.0,
                             objective="max-entropy")
         export(mean_field(None), tmp_path / f"m{points}.xml", law=law, initial=0.5)
-        _, result = roadrunner_run((tmp_path / f"m{points}.xml").read_text(), 20.0, 41)
+        _, result = roadrunner_run((tmp_path / f"m{points}.xml").read_text(encoding="utf-8"), 20.0, 41)
         errors.append(np.abs(result[:, 1] - exact).max())
     assert 3.0 < errors[0] / errors[1] < 5.0
 
@@ -409,7 +409,7 @@ def stated_error(text):
 def test_python_code_evaluates_to_the_fit(fits, which, law, max_entropy_law, tmp_path):
     fit = fits[which]
     export(fit, tmp_path / "fit.py")
-    text = (tmp_path / "fit.py").read_text()
+    text = (tmp_path / "fit.py").read_text(encoding="utf-8")
     assert "np." not in text and "array(" not in text and "float64" not in text
     namespace = {}
     exec(compile(text, "fit.py", "exec"), namespace)
@@ -445,7 +445,7 @@ def test_c_code_compiles_and_agrees(fits, which, tmp_path):
     out = subprocess.run([str(tmp_path / "run")], check=True, capture_output=True, text=True).stdout.split()
     want = np.concatenate([fit.evaluate(values, i) for i in rows])
     np.testing.assert_allclose(np.array(out, dtype=float), want, rtol=1e-13, atol=1e-15)
-    assert stated_error((tmp_path / "fit.c").read_text()) == fit.max_abs_error
+    assert stated_error((tmp_path / "fit.c").read_text(encoding="utf-8")) == fit.max_abs_error
 
 
 def test_latex_parses_back_to_the_fit(fits, tmp_path):
@@ -454,7 +454,7 @@ def test_latex_parses_back_to_the_fit(fits, tmp_path):
 
     fit = fits["global logistic"]
     export(fit, tmp_path / "fit.tex")
-    text = (tmp_path / "fit.tex").read_text()
+    text = (tmp_path / "fit.tex").read_text(encoding="utf-8")
     body = re.search(r"\\mid v\) = (.*)\n", text).group(1)
     expression = parse_latex(body, backend="lark").subs(sympy.Symbol("e"), sympy.E)
     values = dict(re.findall(r"\$([ab]) = ([-0-9.e]+)\$", text))
@@ -490,26 +490,26 @@ def test_unconverged_law_is_refused_or_marked(law, max_entropy_law, tmp_path):
     assert files_in(tmp_path) == []
     done = export(bad, tmp_path / "law.csv", allow_unconverged=True)
     assert not done.converged and "NOT converged" in repr(done)
-    sidecar = json.loads((tmp_path / "law.csv.json").read_text())
+    sidecar = json.loads((tmp_path / "law.csv.json").read_text(encoding="utf-8"))
     assert sidecar["metadata"]["converged"] is False and "NOT CONVERGED" in sidecar["metadata"]["note"]
     assert sidecar["converged"][3] is False
     assert read_table(tmp_path / "law.csv").attrs["converged"] == 0
     export(bad, tmp_path / "fit.c", phenotype="divide", allow_unconverged=True)
-    assert "WARNING: the law did NOT converge" in (tmp_path / "fit.c").read_text()
+    assert "WARNING: the law did NOT converge" in (tmp_path / "fit.c").read_text(encoding="utf-8")
     model_law = unconverged(max_entropy_law)
     with pytest.raises(sl.InputError, match="`law` did not converge"):
         export(mean_field(None), tmp_path / "model.xml", law=model_law, initial=0.5)
     export(mean_field(None), tmp_path / "model.xml", law=model_law, initial=0.5, allow_unconverged=True)
-    assert 'switchlaw:converged="false"' in (tmp_path / "model.xml").read_text()
+    assert 'switchlaw:converged="false"' in (tmp_path / "model.xml").read_text(encoding="utf-8")
 
 
 def test_existing_files_are_kept_unless_overwrite(law, tmp_path):
     (tmp_path / "law.csv.json").write_text("keep me")
     with pytest.raises(sl.InputError, match="law.csv.json' exists; refusing to replace it \\(pass overwrite=True\\)"):
         export(law, tmp_path / "law.csv")
-    assert files_in(tmp_path) == ["law.csv.json"] and (tmp_path / "law.csv.json").read_text() == "keep me"
+    assert files_in(tmp_path) == ["law.csv.json"] and (tmp_path / "law.csv.json").read_text(encoding="utf-8") == "keep me"
     export(law, tmp_path / "law.csv", overwrite=True)
-    assert json.loads((tmp_path / "law.csv.json").read_text())["kind"] == "switching-law"
+    assert json.loads((tmp_path / "law.csv.json").read_text(encoding="utf-8"))["kind"] == "switching-law"
     with pytest.raises(sl.InputError, match="existing folder"):
         export(law, tmp_path / "missing" / "law.json")
 

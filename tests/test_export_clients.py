@@ -93,7 +93,7 @@ SIGNALS = np.array([0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 6.0, 60.0])
 def test_python_code_stays_a_probability(wild_hill, tmp_path):
     export(wild_hill, tmp_path / "fit.py")
     namespace = {}
-    exec(compile((tmp_path / "fit.py").read_text(), "fit.py", "exec"), namespace)
+    exec(compile((tmp_path / "fit.py").read_text(encoding="utf-8"), "fit.py", "exec"), namespace)
     got = np.array([namespace["q_divide"](float(v)) for v in SIGNALS])
     # The Hill formula itself, written out here: low + (high - low) v^n / (half^n + v^n).
     hill = -0.2 + 1.5 * SIGNALS**3 / (2.0**3 + SIGNALS**3)
@@ -199,7 +199,7 @@ def test_piecewise_depth_grows_as_log2_of_the_grid(points, tmp_path):
     from switchlaw.exporters._sbml import piecewise_depth
 
     export(mean_field(2.0), tmp_path / "model.xml", law=grid_law(points), initial=0.5)
-    model = libsbml.readSBMLFromString((tmp_path / "model.xml").read_text()).getModel()
+    model = libsbml.readSBMLFromString((tmp_path / "model.xml").read_text(encoding="utf-8")).getModel()
     for name in ("fraction_divide", "fraction_move"):
         depth = piecewise_depth(model.getAssignmentRuleByVariable(name).getMath())
         # A balanced binary search over n - 1 intervals needs ceil(log2(n - 1)) comparisons
@@ -229,7 +229,7 @@ def test_count_variant_is_the_density_model_times_the_system_size(tau, tmp_path)
     initial = 250 if tau is None else [150, 100]
     export(mean_field(tau), tmp_path / "counts.xml", law=law, initial=initial, variant="counts",
            system_size=size, time_unit="hour")
-    text = (tmp_path / "counts.xml").read_text()
+    text = (tmp_path / "counts.xml").read_text(encoding="utf-8")
     assert "sbml:units" not in text and "<piecewise>" not in text and "listOfRules" not in text
     species = ["cells"] if tau is None else ["cells_divide", "cells_move"]
     times, got = roadrunner_run(tmp_path / "counts.xml", species)
@@ -415,10 +415,10 @@ def test_study_time_unit_reaches_every_export(tmp_path):
     (tmp_path / "hours.toml").write_text(text, encoding="utf-8")
     out = tmp_path / "run"
     assert main(["run", str(tmp_path / "hours.toml"), "--out", str(out), "--quiet"]) == 0
-    summary = json.loads((out / "summary.json").read_text())
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     assert summary["study"]["time_unit"] == "hour"
-    assert json.loads((out / "law.csv.json").read_text())["metadata"]["study"]["time_unit"] == "hour"
-    document = libsbml.readSBMLFromString((out / "model.sbml").read_text())
+    assert json.loads((out / "law.csv.json").read_text(encoding="utf-8"))["metadata"]["study"]["time_unit"] == "hour"
+    document = libsbml.readSBMLFromString((out / "model.sbml").read_text(encoding="utf-8"))
     model = document.getModel()
     assert model.getTimeUnits() == "hour"
     hour = model.getUnitDefinition("hour").getUnit(0)

@@ -99,7 +99,7 @@ def test_force_never_replaces_a_folder_switchlaw_did_not_write(tmp_path, monkeyp
     monkeypatch.chdir(work)
     assert main(["demo", "colony", "--out", ".", "--force", "--quiet"]) == 2
     assert main(["demo", "colony", "--out", str(work), "--force", "--quiet"]) == 2
-    assert (work / "thesis.txt").read_text() == "keep"
+    assert (work / "thesis.txt").read_text(encoding="utf-8") == "keep"
     out = tmp_path / "out"
     old = os.umask(0o022)
     try:

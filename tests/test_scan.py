@@ -209,7 +209,7 @@ def test_killed_scan_resumes_computing_only_what_is_missing(tmp_path):
     # 2. Resume: exactly the items not on disk are computed, once each.
     log.unlink()
     run_script(log, checkpoint, tmp_path / "resumed.nc", 0.0)
-    computed = [int(line) for line in log.read_text().split()]
+    computed = [int(line) for line in log.read_text(encoding="utf-8").split()]
     assert sorted(computed) == sorted(set(range(60)) - done)
     # 3. The result equals an uninterrupted run exactly.
     run_script(tmp_path / "other.log", tmp_path / "fresh", tmp_path / "uninterrupted.nc", 0.0)

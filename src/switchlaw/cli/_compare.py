@@ -50,7 +50,7 @@ def _image(folder: Path, stem: str) -> str | None:
 
 def page(first, second) -> str:
     """The comparison report as one self-contained HTML string."""
-    from ._pipeline import CAUTION
+    from ._caution import CAUTION
     from ._report_parts import _environment, key_numbers
 
     folders = [Path(first), Path(second)]

@@ -35,6 +35,9 @@ _UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
 
 from .._errors import InputError
 
+#: Names a payoff expression may use: the sensed state and the population density.
+PAYOFF_VARIABLES = ("y", "density")
+
 
 class ExpressionError(InputError):
     """An expression uses something outside the allowed arithmetic, or cannot be evaluated."""

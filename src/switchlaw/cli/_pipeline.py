@@ -13,13 +13,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from ._caution import CAUTION
 from ._study import Study, environment_function, payoff_functions
-
-CAUTION = (
-    "Research software, not a medical device: these results are hypotheses about cell "
-    "populations under stated assumptions, not predictions or advice for any patient. "
-    "Defer to clinical practice."
-)
 
 
 class Progress:

@@ -140,9 +140,9 @@ def fluctuating_inputs(study):
     if flu.statistics == "iid":
         probs = np.asarray(flu.probabilities, dtype=float)
     elif flu.statistics == "periodic":
-        probs = sl.PeriodicEnvironment(list(range(n)), [int(d) for d in flu.durations]).time_fractions(n)
+        probs = sl.PeriodicHabitat(list(range(n)), [int(d) for d in flu.durations]).time_fractions(n)
     else:
-        probs = sl.MarkovEnvironment(np.asarray(flu.transition, dtype=float)).probs
+        probs = sl.MarkovHabitat(np.asarray(flu.transition, dtype=float)).probs
     return fitness, probs, sl.symmetric_cue(n, flu.cue_error)
 
 

@@ -16,7 +16,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from . import _expressions, _sections
 
-PAYOFF_VARIABLES = ("y", "density")
+PAYOFF_VARIABLES = _expressions.PAYOFF_VARIABLES
 PARAMETER_VARIABLES = ("density",)
 
 # Size bounds: what one machine can do in minutes. ``_estimate`` weighs the stages together.
