@@ -176,7 +176,7 @@ def python_sweeps(model: LatticeModel, codes: np.ndarray, sweeps: int, dt: float
 # ------------------------------------------------------------------------------ sections
 def section_ssa(law, quick: bool) -> None:
     print("1. Well-mixed SSA (exact), 2 phenotypes, capacity 500, law with tau = 1")
-    model = BirthDeathSwitching(division=[1.0, 0.2], death=[0.3, 0.3], capacity=500, law=law, tau=1.0)
+    model = BirthDeathSwitching(division=[1.0, 0.2], death=[0.3, 0.3], carrying_capacity=500, law=law, tau=1.0)
     replicates = 200 if quick else 1000
     seconds, run = median_time(lambda: model.simulate([20, 20], t_end=10.0, times=[10.0],
                                                        replicates=replicates, seed=1), 3)

@@ -265,7 +265,7 @@ def test_count_variant_propensities_are_non_negative_everywhere(tau, tmp_path):
 
 
 def switchlaw_counts(tau, replicates, t_end):
-    model = sl.BirthDeathSwitching(division=[1.0, 0.0], death=[0.2, 0.2], capacity=20, law=count_law(), tau=tau)
+    model = sl.BirthDeathSwitching(division=[1.0, 0.0], death=[0.2, 0.2], carrying_capacity=20, law=count_law(), tau=tau)
     return model.simulate([5, 5], t_end=t_end, times=[0.0, t_end], replicates=replicates, seed=20261203).counts[:, -1]
 
 

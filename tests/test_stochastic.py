@@ -262,7 +262,7 @@ def test_switching_by_the_law_relaxes_to_its_fractions(law):
     # two-state chains).
     capacity, n, tau = 100, 40, 0.5
     f = law.fractions(n / capacity)[0]
-    model = BirthDeathSwitching(division=[0.0, 0.0], death=[0.0, 0.0], capacity=capacity, law=law, tau=tau)
+    model = BirthDeathSwitching(division=[0.0, 0.0], death=[0.0, 0.0], carrying_capacity=capacity, law=law, tau=tau)
     times = np.array([0.0, 0.25, 0.5, 1.0, 3.0])
     replicates = 4000
     run = model.simulate([0, n], t_end=3.0, times=times, replicates=replicates, seed=5)
@@ -281,7 +281,7 @@ def test_extinction_curve_of_a_logistic_chain_matches_first_step_analysis():
     # One phenotype with capacity K: birth b n (1 - n/K), death d n — a one-type chain whose
     # exact extinction-before-`upper` probabilities come from first-step analysis.
     b, d, capacity, upper = 1.0, 0.8, 100, 30
-    model = BirthDeathSwitching(division=[b], death=[d], capacity=capacity)
+    model = BirthDeathSwitching(division=[b], death=[d], carrying_capacity=capacity)
     sizes = np.array([1, 2, 3, 5, 8, 12])
     replicates = 3000
     curve = model.extinction_curve(sizes, upper=upper, replicates=replicates, seed=8)
@@ -313,7 +313,7 @@ def test_extinction_curve_with_a_time_horizon_matches_kendall():
 
 # ------------------------------------------------------------------------- reproducibility
 def test_same_seed_same_numbers_and_replicates_do_not_depend_on_batch_size(law):
-    model = BirthDeathSwitching(division=[1.0, 0.2], death=[0.4, 0.4], capacity=60, law=law, tau=1.0)
+    model = BirthDeathSwitching(division=[1.0, 0.2], death=[0.4, 0.4], carrying_capacity=60, law=law, tau=1.0)
     a = model.simulate([3, 3], t_end=5.0, replicates=150, seed=9)
     b = model.simulate([3, 3], t_end=5.0, replicates=150, seed=9)
     c = model.simulate([3, 3], t_end=5.0, replicates=150, seed=10)
@@ -576,8 +576,8 @@ def test_mean_field_comparison_reports_the_discrepancy(law):
      r"`initial` must be non-negative integers; entry 0 is 2\.5"),
     (lambda: BirthDeathSwitching(division=[1.0], death=[0.1]).simulate([-3], t_end=1, replicates=2, seed=1),
      r"`initial` must be non-negative integers; entry 0 is -3\.0"),
-    (lambda: BirthDeathSwitching(division=[1.0], death=[0.1], capacity=10).simulate([11], t_end=1, replicates=2, seed=1),
-     r"`initial` must total at most `capacity` \(10\) \(got 11\)"),
+    (lambda: BirthDeathSwitching(division=[1.0], death=[0.1], carrying_capacity=10).simulate([11], t_end=1, replicates=2, seed=1),
+     r"`initial` must total at most `carrying_capacity` \(10\) \(got 11\)"),
     (lambda: BirthDeathSwitching(division=[1.0], death=[0.1]).simulate([2], t_end=1, replicates=0, seed=1),
      r"`replicates` must be an integer >= 1 \(got 0\)"),
     (lambda: BirthDeathSwitching(division=[1.0], death=[0.1]).extinction_curve([0, 2], upper=5, replicates=2, seed=1),
@@ -616,9 +616,9 @@ def test_law_must_fit_the_lattice(law):
     partial = sl.derive_law(GO_OR_GROW, lambda rho: sl.occupancy(4, rho), densities=[0.1, 0.5],
                             beta=1.0, objective="max-entropy")
     with pytest.raises(sl.InputError, match=r"`law` must be derived on densities covering \[0, 1\]"):
-        BirthDeathSwitching(division=[1.0, 0.0], death=[0.1, 0.1], capacity=10, law=partial, tau=1.0)
+        BirthDeathSwitching(division=[1.0, 0.0], death=[0.1, 0.1], carrying_capacity=10, law=partial, tau=1.0)
     with pytest.raises(sl.InputError, match=r"`tau` must be given with a law"):
-        BirthDeathSwitching(division=[1.0, 0.0], death=[0.1, 0.1], capacity=10, law=law)
+        BirthDeathSwitching(division=[1.0, 0.0], death=[0.1, 0.1], carrying_capacity=10, law=law)
 
 
 def test_results_print_short_summaries(law):
@@ -742,3 +742,11 @@ def test_batched_sweep_draws_are_independent_bernoulli_trials(width):
         assert np.array_equal(rank, rank1)
         assert np.array_equal(rr[order], rr1[order1]) and np.array_equal(ss[order], ss1[order1])
         assert np.array_equal(u[order], u1[order1])
+
+
+def test_old_capacity_keyword_still_works_with_a_deprecation_warning():
+    # "capacity" is the channel capacity (bits); the stochastic model's K is the carrying
+    # capacity. The old keyword keeps working for one release (common practice, no source).
+    with pytest.warns(DeprecationWarning, match=r"`capacity=` is deprecated.*`carrying_capacity=`"):
+        old = BirthDeathSwitching(division=[1.0], death=[0.5], capacity=10)
+    assert old.carrying_capacity == 10

@@ -99,7 +99,7 @@ def run_extinction(study, model, payoff, environment) -> dict:
             tau = ext.tau if ext.tau is not None else study.population.tau
             law = _law_on_unit_interval(study, payoff, environment, beta, points=min(ext.sites, 100) + 1)
             chain = sl.BirthDeathSwitching(division=_rates(study, "division"), death=_rates(study, "death"),
-                                           capacity=ext.sites, law=law, tau=tau)
+                                           carrying_capacity=ext.sites, law=law, tau=tau)
             entry["simulated"] = chain.extinction_curve(ext.founders, upper=upper, replicates=ext.replicates,
                                                         seed=study.study.seed)
             entry["tau"] = tau

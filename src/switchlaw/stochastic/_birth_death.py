@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .._deprecation import renamed_keyword
 from .._errors import InputError
 from .._validate import as_positive, choice
 from ._chain import BLOCK, METHODS, _seed_label
@@ -35,8 +36,9 @@ class BirthDeathSwitching:
     ----------
     division, death : array_like
         Per-phenotype rates ``b_x``, ``d_x`` (per cell per unit time), finite and >= 0.
-    capacity : int, optional
+    carrying_capacity : int, optional
         Carrying capacity ``K`` in cells; the density is ``n / K``. Required with a law.
+        ``capacity=`` is its old name, deprecated.
     law : SwitchingLaw, optional
         Derived on densities covering [0, 1]; needs ``tau``.
     tau : float, optional
@@ -64,12 +66,14 @@ class BirthDeathSwitching:
     (200, 101, 1)
     """
 
-    def __init__(self, *, division, death, capacity=None, law=None, tau=None, switching=None,
+    @renamed_keyword("capacity", "carrying_capacity")
+    def __init__(self, *, division, death, carrying_capacity=None, law=None, tau=None, switching=None,
                  phenotypes=None):
         self.division = as_rate_vector(division, "division")
         size = self.division.size
         self.death = as_rate_vector(death, "death", size)
-        self.capacity = None if capacity is None else as_count(capacity, "capacity", minimum=1)
+        self.carrying_capacity = (None if carrying_capacity is None
+                                  else as_count(carrying_capacity, "carrying_capacity", minimum=1))
         if law is not None and switching is not None:
             raise InputError("give either `law` (with `tau`) or `switching`, not both")
         self.law = None if law is None else check_law(law)
@@ -82,13 +86,13 @@ class BirthDeathSwitching:
             if tau is None:
                 raise InputError("`tau` must be given with a law (cells re-decide at rate 1 / tau)")
             self.tau = as_positive(tau, "tau")
-            if self.capacity is None:
-                raise InputError("`capacity` must be given with a law: the law reads the density n / capacity")
+            if self.carrying_capacity is None:
+                raise InputError("`carrying_capacity` must be given with a law: the law reads the density n / carrying_capacity")
             if len(self.law.phenotypes) != size:
                 raise InputError(
                     f"`division` must have one rate per phenotype of the law ({len(self.law.phenotypes)}) (got {size})"
                 )
-            self._fractions = fraction_table(self.law, np.arange(self.capacity + 1) / self.capacity)
+            self._fractions = fraction_table(self.law, np.arange(self.carrying_capacity + 1) / self.carrying_capacity)
         elif tau is not None:
             raise InputError("`tau` applies only with a `law`")
         if phenotypes is None:
@@ -108,7 +112,7 @@ class BirthDeathSwitching:
     def _order_table(self) -> np.ndarray | None:
         """Leap-condition factor per size: 2 with crowding (second order), raised where the
         law's fractions change faster than linearly with density."""
-        base = 2.0 if self.capacity is not None else 1.0
+        base = 2.0 if self.carrying_capacity is not None else 1.0
         if self._fractions is None:
             return None
         f = self._fractions
@@ -123,7 +127,7 @@ class BirthDeathSwitching:
         if self._from.size == 0:
             return np.zeros((x.shape[0], 0))
         if self.law is not None:
-            n = np.clip(x.sum(axis=1), 0, self.capacity)
+            n = np.clip(x.sum(axis=1), 0, self.carrying_capacity)
             return self._fractions[n][:, self._to] / self.tau
         if self.switching is None:
             return np.zeros((x.shape[0], self._from.size))
@@ -147,14 +151,15 @@ class BirthDeathSwitching:
         """Rates of every reaction at counts ``x`` (rows, phenotypes): divisions, deaths, switches."""
         x = np.asarray(x, dtype=np.int64)
         n = x.sum(axis=1)
-        crowd = np.ones(x.shape[0]) if self.capacity is None else np.clip(1.0 - n / self.capacity, 0.0, None)
+        k = self.carrying_capacity
+        crowd = np.ones(x.shape[0]) if k is None else np.clip(1.0 - n / k, 0.0, None)
         births = self.division * x * crowd[:, None]
         deaths = self.death * x
         switches = x[:, self._from] * self._switch_rates(x)
         return np.hstack([births, deaths, switches])
 
     def _network(self, upper: int | None) -> Network:
-        capacity = self.capacity
+        capacity = self.carrying_capacity
         g_table = self._g
         base = 2.0 if capacity is not None else 1.0
 
@@ -186,8 +191,8 @@ class BirthDeathSwitching:
             raise InputError(
                 f"`initial` must give a cell count per phenotype ({self.division.size}) (got shape {counts.shape})"
             )
-        if self.capacity is not None and counts.sum() > self.capacity:
-            raise InputError(f"`initial` must total at most `capacity` ({self.capacity}) (got {int(counts.sum())})")
+        if self.carrying_capacity is not None and counts.sum() > self.carrying_capacity:
+            raise InputError(f"`initial` must total at most `carrying_capacity` ({self.carrying_capacity}) (got {int(counts.sum())})")
         return counts
 
     def simulate(self, initial, *, t_end, times=None, replicates, seed, method: str = "exact",
@@ -274,9 +279,9 @@ class BirthDeathSwitching:
         """
         choice(method, "method", METHODS)
         sizes = as_sizes(sizes)
-        upper, t_max = as_horizon(upper, t_max, smallest=int(sizes[-1]), largest=self.capacity)
-        if self.capacity is not None and sizes[-1] > self.capacity:
-            raise InputError(f"`sizes` must be at most `capacity` ({self.capacity}) (got {int(sizes[-1])})")
+        upper, t_max = as_horizon(upper, t_max, smallest=int(sizes[-1]), largest=self.carrying_capacity)
+        if self.carrying_capacity is not None and sizes[-1] > self.carrying_capacity:
+            raise InputError(f"`sizes` must be at most `capacity` ({self.carrying_capacity}) (got {int(sizes[-1])})")
         replicates = as_replicates(replicates)
         root = as_seed(seed)
         epsilon = as_positive(epsilon, "epsilon")
@@ -316,7 +321,7 @@ class BirthDeathSwitching:
     def __repr__(self) -> str:
         switching = (f"law, tau={self.tau:g}" if self.law is not None
                      else "callable switching" if self.switching is not None else "no switching")
-        capacity = "no capacity" if self.capacity is None else f"capacity {self.capacity}"
+        capacity = "no capacity" if self.carrying_capacity is None else f"capacity {self.carrying_capacity}"
         return f"BirthDeathSwitching({self.division.size} phenotypes, {capacity}, {switching})"
 
 
