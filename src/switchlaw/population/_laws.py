@@ -64,7 +64,7 @@ class LawCache:
         return f"LawCache({len(self._laws)} laws, {len(self)} fractions kept)"
 
     def _entry(self, model) -> "_Law":
-        custom = type(model)._derive_fractions is not _default_derive()
+        custom = not getattr(type(model)._derive_fractions, "default_law", False)
         referents = (model if custom else None, model.payoff, model.environment)
         names = None if model.phenotypes is None else tuple(model.phenotypes)
         key = tuple(id(r) for r in referents) + (model.objective, names)
@@ -85,12 +85,6 @@ class _Law:
         self.problems: OrderedDict = OrderedDict()
         self.fractions: OrderedDict = OrderedDict()
         self.last_marginal = None
-
-
-def _default_derive():
-    from ._mean_field import MeanField
-
-    return MeanField._derive_fractions
 
 
 def _remember(table: OrderedDict, key, value, size: int) -> None:

@@ -172,6 +172,8 @@ class MeanField:
         """``f_x(rho)`` of one density without a cache (subclasses may replace the law here)."""
         return law_fractions(self, np.array([float(rho)]), float(beta), LawCache())[0]
 
+    _derive_fractions.default_law = True  # a subclass that replaces it derives its own law
+
     def net_rates(self, density) -> np.ndarray:
         """``a_x(rho) = b_x (1 - rho) - d_x - c_x rho`` per phenotype (per unit time).
 
