@@ -53,7 +53,8 @@ class LawCache:
         return (LawCache, (self.size,))
 
     def __len__(self) -> int:
-        return sum(len(entry.fractions) for entry in self._laws.values())
+        """Decision problems and fractions kept, over all laws."""
+        return sum(len(entry.fractions) + len(entry.problems) for entry in self._laws.values())
 
     def clear(self) -> None:
         """Forget every law."""
@@ -61,7 +62,7 @@ class LawCache:
             self._laws.clear()
 
     def __repr__(self) -> str:
-        return f"LawCache({len(self._laws)} laws, {len(self)} fractions kept)"
+        return f"LawCache({len(self._laws)} laws, {len(self)} problems and fractions kept)"
 
     def _entry(self, model) -> "_Law":
         custom = not getattr(type(model)._derive_fractions, "default_law", False)
@@ -77,12 +78,13 @@ class LawCache:
 class _Law:
     """What a cache holds for one law; ``referents`` keep the keyed objects alive."""
 
-    __slots__ = ("referents", "custom", "problems", "fractions", "last_marginal")
+    __slots__ = ("referents", "custom", "problems", "stacks", "fractions", "last_marginal")
 
     def __init__(self, referents, custom: bool):
         self.referents = referents
         self.custom = custom
         self.problems: OrderedDict = OrderedDict()
+        self.stacks: OrderedDict = OrderedDict()
         self.fractions: OrderedDict = OrderedDict()
         self.last_marginal = None
 
@@ -104,15 +106,27 @@ def _problem(model, entry: _Law, rho: float, size: int):
 
 
 def law_fractions(model, densities: np.ndarray, beta: float, cache: LawCache) -> np.ndarray:
-    """``f_x(rho)`` for every density (shape ``(k, phenotypes)``), derived once per density.
+    """``f_x(rho)`` for every density (shape ``(k, phenotypes)``).
 
-    Max-entropy laws are evaluated for all missing densities in one array operation;
-    min-information laws run the marginal solver per density, each warm-started from the last.
+    Max-entropy laws are closed form given the decision problem: only the problems are kept
+    (per density, and stacked per density vector), and the fractions for all densities come
+    from one array operation. Min-information laws keep each ``(density, beta)`` marginal and
+    run the solver for the missing ones, each warm-started from the last.
     """
     n = model.division.size
-    out = np.empty((densities.size, n))
     with cache._lock:
         entry = cache._entry(model)
+        if not entry.custom and model.objective == "max-entropy":
+            probs, u = _stacked(model, entry, densities, cache.size)
+            if probs is not None:
+                logits = beta * u
+                logits -= logits.max(axis=-1, keepdims=True)
+                q = np.exp(logits)
+                q /= q.sum(axis=-1, keepdims=True)
+                f = np.einsum("ky,kyx->kx", probs, q)
+                _check(f.shape[1], n)
+                return f
+        out = np.empty((densities.size, n))
         missing = []
         for i, rho in enumerate(densities.tolist()):
             found = entry.fractions.get((rho, beta))
@@ -130,26 +144,37 @@ def law_fractions(model, densities: np.ndarray, beta: float, cache: LawCache) ->
             problems = [_problem(model, entry, rho, cache.size) for rho in rhos]
             derived = _derive(model.objective, problems, beta, entry)
         for i, rho, f in zip(missing, rhos, derived):
-            if f.shape != (n,):
-                raise InputError(
-                    f"`division` must have one rate per phenotype ({f.size}) (got {n})"
-                )
+            _check(f.size if f.ndim == 1 else -1, n)
             _remember(entry.fractions, (rho, beta), f, cache.size)
             out[i] = f
     return out
 
 
+def _check(found: int, n: int) -> None:
+    if found != n:
+        raise InputError(f"`division` must have one rate per phenotype ({found}) (got {n})")
+
+
+def _stacked(model, entry: _Law, densities: np.ndarray, size: int):
+    """Problems at every density stacked as ``(k, states)`` and ``(k, states, phenotypes)``
+    arrays (kept per density vector), or ``(None, None)`` when their shapes differ."""
+    if densities.size == 1:
+        p, u = _problem(model, entry, float(densities[0]), size)
+        return p[None], u[None]
+    key = densities.tobytes()
+    found = entry.stacks.get(key)
+    if found is None:
+        problems = [_problem(model, entry, rho, size) for rho in densities.tolist()]
+        if len({u.shape for _, u in problems}) == 1:
+            found = (np.stack([p for p, _ in problems]), np.stack([u for _, u in problems]))
+        else:
+            found = (None, None)
+        _remember(entry.stacks, key, found, 64)
+    return found
+
+
 def _derive(objective: str, problems: list, beta: float, entry: _Law) -> list:
     if objective == "max-entropy":
-        shapes = {u.shape for _, u in problems}
-        if len(shapes) == 1:
-            probs = np.stack([p for p, _ in problems])
-            u = np.stack([u for _, u in problems])
-            logits = beta * u
-            logits = logits - logits.max(axis=2, keepdims=True)
-            q = np.exp(logits)
-            q /= q.sum(axis=2, keepdims=True)
-            return list(np.einsum("ky,kyx->kx", probs, q))
         return [p @ max_entropy_policy(u, beta, None) for p, u in problems]
     derived = []
     for p, u in problems:
