@@ -132,3 +132,12 @@ def test_rates_take_a_vector_of_densities(tau):
     assert [m.reduced(r, 2.5) for r in rho] == pytest.approx(list(expected), rel=1e-13, abs=1e-15)
     with pytest.raises(sl.InputError, match="density"):
         m.fractions(np.array([0.5, 1.5]), 1.0)
+
+
+def test_continuation_reports_progress_up_to_done():
+    # A progress line with the time left needs (done, total) that rise to done == total.
+    seen = []
+    found = model().critical_betas(0.5, 8.0, samples=11, on_progress=lambda d, t: seen.append((d, t)))
+    assert seen[-1][0] == seen[-1][1] and all(d <= t for d, t in seen)
+    assert [d for d, _ in seen] == sorted(d for d, _ in seen)
+    assert found[0].beta == pytest.approx(transcritical(1.0, 0.2), rel=1e-9)

@@ -86,15 +86,26 @@ def branch_stability(family, densities, values, slopes) -> np.ndarray:
     return stable
 
 
-def diagram(family, start, stop, *, finite_tau: bool, samples: int = 41, ds: float = 0.01) -> BifurcationDiagram:
+def diagram(
+    family, start, stop, *, finite_tau: bool, samples: int = 41, ds: float = 0.01, on_progress=None
+) -> BifurcationDiagram:
     """Branches of equilibria for ``family``'s parameter in ``[start, stop]`` (see
-    :meth:`MeanField.continuation`)."""
+    :meth:`MeanField.continuation`). ``on_progress(done, total)`` after each sample of the
+    zero state and each branch start (``total`` is known once the starts are)."""
+
+    def report(done, total):
+        if on_progress is not None:
+            on_progress(done, total)
+
     lo = family.check(start, "start")
     hi = family.check(stop, "stop")
     if not hi > lo:
         raise InputError(f"`stop` must exceed `start` (got {lo!r} and {hi!r})")
     grid = np.linspace(lo, hi, samples)
-    zero = np.array([family.low_density_growth(v) for v in grid])
+    zero = np.empty(samples)
+    for i, v in enumerate(grid):
+        zero[i] = family.low_density_growth(v)
+        report(i + 1, samples + 1)
     critical = []
     for i in range(samples - 1):
         if zero[i] == 0.0:
@@ -111,7 +122,8 @@ def diagram(family, start, stop, *, finite_tau: bool, samples: int = 41, ds: flo
     for point in critical:
         starts.append((1e-9, point.value, (1.0, 0.0)))
     branches = []
-    for rho, value, direction in starts:
+    for k, (rho, value, direction) in enumerate(starts):
+        report(samples + k, samples + len(starts))
         if any(_near(branch, rho, value, lo, hi) for branch in branches):
             continue
         densities, values, slopes, ended = trace_branch(
@@ -144,6 +156,7 @@ def diagram(family, start, stop, *, finite_tau: bool, samples: int = 41, ds: flo
                 abs(found.value - c.value) > 1e-5 * max(1.0, abs(c.value)) for c in critical
             ):
                 critical.append(found)
+    report(samples + len(starts), samples + len(starts))
     critical.sort(key=lambda c: c.value)
     # Two branches traced from different starts can share a turning point: keep it once.
     unique = []

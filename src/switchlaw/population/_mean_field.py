@@ -346,7 +346,7 @@ class MeanField:
 
     def continuation(
         self, start, stop, *, parameter: str = "beta", beta=None, samples: int = 41, ds: float = 0.01,
-        cache=None,
+        cache=None, on_progress=None,
     ) -> BifurcationDiagram:
         """Branches of equilibria for a parameter in ``[start, stop]`` and their critical points.
 
@@ -368,11 +368,15 @@ class MeanField:
             Fixed sensitivity when continuing in another parameter.
         cache : LawCache, optional
             Laws to reuse and keep (a fresh cache for this call if not given).
+        on_progress : callable, optional
+            ``on_progress(done, total)`` after each sample of the zero state and each branch
+            (for a progress line with the time left); ``done == total`` at the end.
         """
         from ._diagram import diagram
 
         family = self.along(parameter, beta=beta, cache=cache)
-        return diagram(family, start, stop, finite_tau=self.tau is not None, samples=samples, ds=ds)
+        return diagram(family, start, stop, finite_tau=self.tau is not None, samples=samples, ds=ds,
+                       on_progress=on_progress)
 
     def critical_betas(self, beta_min, beta_max, **options) -> list[CriticalPoint]:
         """Transcritical points and folds for beta in ``[beta_min, beta_max]``, by increasing beta."""
