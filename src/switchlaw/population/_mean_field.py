@@ -159,6 +159,11 @@ class MeanField:
         ``density`` may be one density (result shape ``(phenotypes,)``) or a vector of them
         (shape ``(k, phenotypes)``, all derived in one call).
         """
+        if isinstance(density, (float, int, np.floating, np.integer)):  # one density: fast path
+            rho = float(density)
+            if not 0.0 <= rho <= 1.0:
+                raise InputError(f"`density` must be in [0, 1] (got {rho!r})")
+            return law_fractions(self, np.array([rho]), as_nonnegative(beta, "beta"), _context(cache))[0]
         rho = np.asarray(density, dtype=float)
         if rho.ndim > 1:
             raise InputError(f"`density` must be a number or a vector (got shape {rho.shape})")
@@ -179,7 +184,7 @@ class MeanField:
 
         Shape ``(phenotypes,)`` for one density, ``(k, phenotypes)`` for a vector.
         """
-        rho = np.asarray(density, dtype=float)[..., None]
+        rho = density if isinstance(density, float) else np.asarray(density, dtype=float)[..., None]
         return self.division * (1.0 - rho) - self.death - self.crowding * rho
 
     def growth(self, density, beta, *, cache=None):
@@ -188,8 +193,9 @@ class MeanField:
         A float for one density, an array for a vector of densities.
         """
         f = self.fractions(density, beta, cache=cache)
-        g = np.einsum("...x,...x->...", f, self.net_rates(density))
-        return float(g) if g.ndim == 0 else g
+        if f.ndim == 1:
+            return float(f @ self.net_rates(density))
+        return np.einsum("kx,kx->k", f, self.net_rates(density))
 
     def reduced(self, density, beta, *, cache=None):
         """The scalar equation whose positive roots are the equilibria.
@@ -203,6 +209,11 @@ class MeanField:
             return self.growth(density, beta, cache=cache)
         f = self.fractions(density, beta, cache=cache)
         denominator = 1.0 - self.tau * self.net_rates(density)
+        if f.ndim == 1:
+            used = f > 0
+            if (denominator[used] <= 0).any():
+                return np.inf
+            return float(f[used] @ (1.0 / denominator[used]) - 1.0)
         used = f > 0
         outrun = (used & (denominator <= 0)).any(axis=-1)
         safe = np.where(used & (denominator > 0), denominator, 1.0)
