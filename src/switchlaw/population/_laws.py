@@ -169,7 +169,8 @@ def _stacked(model, entry: _Law, densities: np.ndarray, size: int):
             found = (np.stack([p for p, _ in problems]), np.stack([u for _, u in problems]))
         else:
             found = (None, None)
-        _remember(entry.stacks, key, found, 64)
+        if densities.size >= 16:  # a grid that is likely asked for again (other betas)
+            _remember(entry.stacks, key, found, 64)
     return found
 
 
