@@ -68,6 +68,7 @@ _EXPORTS = {
     "equilibria_of": ".population",
     "Equilibrium": ".population",
     "MeanField": ".population",
+    "LawCache": ".population",
     "PARAMETERS": ".population",
     "RegimeMap": ".population",
     "REGIMES": ".population",

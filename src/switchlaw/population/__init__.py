@@ -2,6 +2,7 @@
 equilibria, Allee regimes, continuation in beta)."""
 
 from ._continuation import BifurcationDiagram, Branch, CriticalPoint
+from ._laws import LawCache
 from ._mean_field import PARAMETERS, REGIMES, MeanField, RegimeMap, Trajectory
 from ._scalar import Equilibrium, equilibria_of
 
@@ -13,6 +14,7 @@ __all__ = [
     "Branch",
     "CriticalPoint",
     "Equilibrium",
+    "LawCache",
     "MeanField",
     "Trajectory",
     "equilibria_of",

@@ -118,7 +118,10 @@ class BifurcationDiagram:
 
 def _gradient(H, rho, beta):
     lo, hi = max(rho - _STEP, 0.0), min(rho + _STEP, 1.0)
-    h_rho = (H(hi, beta) - H(lo, beta)) / (hi - lo)
+    # Both densities in one vector call of the reduced equation (H may also give one value,
+    # NaN, outside its parameter's domain).
+    h_lo, h_hi = np.broadcast_to(H(np.array([lo, hi]), beta), (2,))
+    h_rho = (h_hi - h_lo) / (hi - lo)
     b_lo = max(beta - _STEP * max(1.0, beta), 0.0)
     b_hi = beta + _STEP * max(1.0, beta)
     h_beta = (H(rho, b_hi) - H(rho, b_lo)) / (b_hi - b_lo)

@@ -9,83 +9,44 @@ with division into free space ``b_x``, death ``d_x``, optional crowding death ``
 cells re-deciding at rate ``1 / tau`` with the law ``q(x | y, rho)`` averaged over
 ``p(y | rho)`` (``f_x``; domain notes §3–4). In the fast-switching limit (``tau=None``)
 ``rho_x = rho f_x(rho)`` and ``rho' = rho g(rho)`` with ``g = sum_x f_x a_x``.
+
+The model is immutable (a frozen dataclass that pickles); laws derived along the way live in an
+explicit :class:`LawCache` that a caller may pass by keyword (``cache=``), never in the model.
+Continuation is in ``_diagram.py``, parameter families in ``_family.py``, regime maps in
+``_regimes.py`` and the law's fractions with their cache in ``_laws.py``.
 """
 
 from __future__ import annotations
 
-import copy
-from collections import OrderedDict
-from dataclasses import dataclass
+from dataclasses import KW_ONLY, dataclass
 
 import numpy as np
-from scipy.optimize import brentq
 
 from .._errors import InputError
 from .._validate import as_array, as_nonnegative, as_positive, choice, phenotype_names
-from ..decision._costs import beta_from_cost
 from ..decision._solve import OBJECTIVES
-from ..decision._minimum_information import minimum_information_marginal
-from ..decision._solve import max_entropy_policy
-from ..laws._law import decision_problem
-from ._continuation import BifurcationDiagram, Branch, CriticalPoint, locate_fold, trace_branch
+from ._continuation import BifurcationDiagram, CriticalPoint
+from ._family import PARAMETERS, Family
+from ._laws import LawCache, law_fractions
+from ._regimes import REGIMES, RegimeMap, regime_map
 from ._scalar import Equilibrium, derivative, roots_on_unit_interval
 
-REGIMES = ("extinction", "monostable", "weak-allee", "strong-allee")
-#: Scalar parameters a model can be continued in.
-PARAMETERS = ("beta", "cost_per_bit", "death_scale", "division_scale", "tau")
-_CACHE = 4096
+__all__ = ["PARAMETERS", "REGIMES", "MeanField", "RegimeMap", "Trajectory"]
 
 
-def _fold_by_counting(family, value: float, rho: float, lo: float, hi: float):
-    """A change in the number of positive equilibria near ``value``, located by bisection."""
-
-    def count(v):
-        return len(family.equilibria(v)) - 1
-
-    width = 1e-3 * (hi - lo)
-    for _ in range(8):
-        a, b = max(lo, value - width), min(hi, value + width)
-        n_a, n_b = count(a), count(b)
-        if n_a != n_b:
-            break
-        width *= 3
-    else:
-        return None
-    while b - a > 1e-11 * max(1.0, abs(a)):
-        middle = 0.5 * (a + b)
-        if count(middle) == n_a:
-            a = middle
-        else:
-            b = middle
-    more = a if n_a > n_b else b
-    roots = sorted((e.density for e in family.equilibria(more)[1:]), key=lambda r: abs(r - rho))
-    density = float(np.mean(roots[:2])) if len(roots) >= 2 else float(rho)
-    return family.point(0.5 * (a + b), "fold", density)
+def _frozen(values: np.ndarray) -> np.ndarray:
+    values = np.array(values, dtype=float)
+    values.flags.writeable = False
+    return values
 
 
-def _clip_to_range(H, densities, betas, stable, lo, hi):
-    """Replace a final step that left the range by the branch's crossing of its edge."""
-    if betas.size >= 2 and not (lo <= betas[-1] <= hi):
-        edge = hi if betas[-1] > hi else lo
-        w = (edge - betas[-2]) / (betas[-1] - betas[-2])
-        guess = densities[-2] + w * (densities[-1] - densities[-2])
-        a, b = sorted((densities[-2], densities[-1]))
-        a, b = max(a - 1e-3, 1e-12), min(b + 1e-3, 1.0)
-        try:
-            guess = brentq(lambda r: H(r, edge), a, b, xtol=1e-14)
-        except ValueError:
-            pass  # no sign change in the bracket: keep the interpolated point
-        densities = np.r_[densities[:-1], guess]
-        betas = np.r_[betas[:-1], edge]
-        stable = np.r_[stable[:-1], stable[-2]]
-    keep = (densities > 0) & (densities <= 1)
-    return densities[keep], betas[keep], stable[keep]
-
-
-def _near(branch, rho: float, beta: float, lo: float, hi: float) -> bool:
-    """Whether ``(rho, beta)`` lies on an already traced branch (scaled distance < 1e-3)."""
-    scaled = np.hypot(branch.densities - rho, (branch.betas - beta) / (hi - lo))
-    return bool(scaled.min() < 1e-3)
+def _context(cache) -> LawCache:
+    """The caller's cache, or a fresh one for this call only."""
+    if cache is None:
+        return LawCache()
+    if not isinstance(cache, LawCache):
+        raise InputError(f"`cache` must be a switchlaw.LawCache (got {type(cache).__name__})")
+    return cache
 
 
 def _rates(value, name: str, n: int | None = None) -> np.ndarray:
@@ -125,6 +86,7 @@ class Trajectory:
         )
 
 
+@dataclass(frozen=True, repr=False, eq=False)
 class MeanField:
     """Mean-field dynamics of a population whose cells switch phenotype by a derived law.
 
@@ -143,6 +105,11 @@ class MeanField:
 
     Notes
     -----
+    The model is immutable: change a parameter with ``dataclasses.replace(model, death=...)``.
+    Every method that derives laws takes ``cache=`` (a :class:`LawCache`) to share them between
+    calls; without it each call uses a fresh cache of its own, so two threads or a worker
+    process given the same model get the same numbers.
+
     Regimes (Stephens, Sutherland & Freckleton 1999; Courchamp, Berec & Gascoigne 2008):
     ``"extinction"`` when no positive state is stable; ``"strong-allee"`` when zero is stable
     (per-capita growth at low density negative) and a positive state is stable (bistable);
@@ -152,182 +119,222 @@ class MeanField:
     ``sum_x f_x / (1 - tau a_x) - 1`` whose positive roots are the equilibria.
     """
 
-    def __init__(
-        self,
-        payoff,
-        environment,
-        *,
-        division,
-        death,
-        tau=None,
-        crowding=None,
-        objective: str = "min-information",
-        phenotypes=None,
-    ):
-        self.payoff = payoff
-        self.environment = environment
-        self.division = _rates(division, "division")
-        self.death = _rates(death, "death", self.division.size)
-        self.crowding = (
-            np.zeros(self.division.size) if crowding is None
-            else _rates(crowding, "crowding", self.division.size)
-        )
-        self.tau = None if tau is None else as_positive(tau, "tau")
-        self.objective = choice(objective, "objective", OBJECTIVES)
-        self.phenotypes = None if phenotypes is None else phenotype_names(phenotypes)
-        if isinstance(payoff, dict):
-            phenotype_names(payoff, "payoff")
-        self._cache: OrderedDict = OrderedDict()
-        self._last_marginal = None
+    payoff: object
+    environment: object
+    _: KW_ONLY
+    division: np.ndarray
+    death: np.ndarray
+    tau: float | None = None
+    crowding: np.ndarray | None = None
+    objective: str = "min-information"
+    phenotypes: object = None
+
+    def __post_init__(self):
+        def put(name, value):
+            object.__setattr__(self, name, value)
+
+        division = _rates(self.division, "division")
+        put("division", _frozen(division))
+        put("death", _frozen(_rates(self.death, "death", division.size)))
+        put("crowding", _frozen(
+            np.zeros(division.size) if self.crowding is None
+            else _rates(self.crowding, "crowding", division.size)
+        ))
+        put("tau", None if self.tau is None else as_positive(self.tau, "tau"))
+        put("objective", choice(self.objective, "objective", OBJECTIVES))
+        put("phenotypes", None if self.phenotypes is None else phenotype_names(self.phenotypes))
+        if isinstance(self.payoff, dict):
+            phenotype_names(self.payoff, "payoff")
+
+    def __setstate__(self, state):
+        for name, value in state.items():
+            if name in ("division", "death", "crowding"):
+                value = _frozen(value)
+            object.__setattr__(self, name, value)
 
     # ----------------------------------------------------------------- the law
-    def fractions(self, density, beta) -> np.ndarray:
-        """Mean-field phenotype fractions ``f_x(density)`` of the law at ``beta``."""
-        key = (float(density), float(beta))
-        if key in self._cache:
-            self._cache.move_to_end(key)
-            return self._cache[key]
-        if not 0.0 <= key[0] <= 1.0:
-            raise InputError(f"`density` must be in [0, 1] (got {key[0]!r})")
-        f = self._derive_fractions(key[0], as_nonnegative(beta, "beta"))
-        if f.size != self.division.size:
-            raise InputError(
-                f"`division` must have one rate per phenotype ({f.size}) (got {self.division.size})"
-            )
-        self._cache[key] = f
-        if len(self._cache) > _CACHE:
-            self._cache.popitem(last=False)
-        return f
+    def fractions(self, density, beta, *, cache=None) -> np.ndarray:
+        """Mean-field phenotype fractions ``f_x(density)`` of the law at ``beta``.
+
+        ``density`` may be one density (result shape ``(phenotypes,)``) or a vector of them
+        (shape ``(k, phenotypes)``, all derived in one call).
+        """
+        if isinstance(density, (float, int, np.floating, np.integer)):  # one density: fast path
+            rho = float(density)
+            if not 0.0 <= rho <= 1.0:
+                raise InputError(f"`density` must be in [0, 1] (got {rho!r})")
+            return law_fractions(self, np.array([rho]), as_nonnegative(beta, "beta"), _context(cache))[0]
+        rho = np.asarray(density, dtype=float)
+        if rho.ndim > 1:
+            raise InputError(f"`density` must be a number or a vector (got shape {rho.shape})")
+        outside = ~((rho >= 0.0) & (rho <= 1.0))
+        if outside.any():
+            raise InputError(f"`density` must be in [0, 1] (got {float(np.atleast_1d(rho)[np.atleast_1d(outside)][0])!r})")
+        f = law_fractions(self, np.atleast_1d(rho), as_nonnegative(beta, "beta"), _context(cache))
+        return f[0] if rho.ndim == 0 else f
 
     def _derive_fractions(self, rho: float, beta: float) -> np.ndarray:
-        """``f_x(rho)``: for min-information the optimal marginal itself; else ``p @ q``."""
-        env, u, _ = decision_problem(self.payoff, self.environment, rho, self.phenotypes)
-        if self.objective == "max-entropy":
-            return env.probs @ max_entropy_policy(u, beta, None)
-        r, record, _ = minimum_information_marginal(u, env.probs, beta, start=self._last_marginal)
-        if record.converged and r.size == u.shape[1]:
-            self._last_marginal = r
-        return r
+        """``f_x(rho)`` of one density without a cache (subclasses may replace the law here)."""
+        return law_fractions(self, np.array([float(rho)]), float(beta), LawCache())[0]
+
+    _derive_fractions.default_law = True  # a subclass that replaces it derives its own law
 
     def net_rates(self, density) -> np.ndarray:
-        """``a_x(rho) = b_x (1 - rho) - d_x - c_x rho`` per phenotype (per unit time)."""
-        return self.division * (1.0 - density) - self.death - self.crowding * density
+        """``a_x(rho) = b_x (1 - rho) - d_x - c_x rho`` per phenotype (per unit time).
 
-    def growth(self, density, beta) -> float:
-        """Per-capita growth ``g(rho) = sum_x f_x(rho) a_x(rho)`` (fast-switching limit)."""
-        return float(self.fractions(density, beta) @ self.net_rates(density))
+        Shape ``(phenotypes,)`` for one density, ``(k, phenotypes)`` for a vector.
+        """
+        rho = density if isinstance(density, float) else np.asarray(density, dtype=float)[..., None]
+        return self.division * (1.0 - rho) - self.death - self.crowding * rho
 
-    def reduced(self, density, beta) -> float:
+    def growth(self, density, beta, *, cache=None):
+        """Per-capita growth ``g(rho) = sum_x f_x(rho) a_x(rho)`` (fast-switching limit).
+
+        A float for one density, an array for a vector of densities.
+        """
+        f = self.fractions(density, beta, cache=cache)
+        if f.ndim == 1:
+            return float(f @ self.net_rates(density))
+        return np.einsum("kx,kx->k", f, self.net_rates(density))
+
+    def reduced(self, density, beta, *, cache=None):
         """The scalar equation whose positive roots are the equilibria.
 
         ``g(rho)`` in the fast-switching limit; ``sum_x f_x / (1 - tau a_x) - 1`` with finite
         ``tau`` (``inf`` where ``1 - tau a_x <= 0`` for a phenotype that cells adopt: its
-        growth outruns switching there; phenotypes with ``f_x = 0`` do not count).
+        growth outruns switching there; phenotypes with ``f_x = 0`` do not count). One
+        density gives a float, a vector of densities an array (evaluated in one call).
         """
         if self.tau is None:
-            return self.growth(density, beta)
-        f = self.fractions(density, beta)
+            return self.growth(density, beta, cache=cache)
+        f = self.fractions(density, beta, cache=cache)
         denominator = 1.0 - self.tau * self.net_rates(density)
+        if f.ndim == 1:
+            used = f > 0
+            if (denominator[used] <= 0).any():
+                return np.inf
+            return float(f[used] @ (1.0 / denominator[used]) - 1.0)
         used = f > 0
-        if (denominator[used] <= 0).any():
-            return np.inf
-        return float(f[used] @ (1.0 / denominator[used]) - 1.0)
+        outrun = (used & (denominator <= 0)).any(axis=-1)
+        safe = np.where(used & (denominator > 0), denominator, 1.0)
+        value = np.einsum("...x,...x->...", np.where(used, f, 0.0), 1.0 / safe) - 1.0
+        value = np.where(outrun, np.inf, value)
+        return float(value) if value.ndim == 0 else value
 
     # --------------------------------------------------------------- dynamics
-    def rhs(self, compartments, beta) -> np.ndarray:
+    def rhs(self, compartments, beta, *, cache=None) -> np.ndarray:
         """Time derivative of the compartments (or of ``[rho]`` in the fast-switching limit)."""
         state = np.clip(np.asarray(compartments, dtype=float), 0.0, None)
         if self.tau is None:
             rho = min(float(state[0]), 1.0)
-            return np.array([rho * self.growth(rho, beta)])
+            return np.array([rho * self.growth(rho, beta, cache=cache)])
         rho = min(float(state.sum()), 1.0)
-        f = self.fractions(rho, beta)
+        f = self.fractions(rho, beta, cache=cache)
         return self.net_rates(rho) * state + (rho * f - state) / self.tau
 
-    def trajectory(self, beta, initial, t_end, *, points: int = 201, rtol: float = 1e-8) -> Trajectory:
+    def trajectory(
+        self, beta, initial, t_end, *, points: int = 201, rtol: float = 1e-8, cache=None
+    ) -> Trajectory:
         """Integrate the model from ``initial`` (a density, or compartments with finite tau)."""
         from scipy.integrate import solve_ivp
 
+        cache = _context(cache)
         t_end = as_positive(t_end, "t_end")
         start = np.atleast_1d(np.asarray(initial, dtype=float))
         if self.tau is None:
             if start.size != 1:
                 raise InputError("`initial` must be one density in the fast-switching limit")
         elif start.size == 1:
-            start = start[0] * self.fractions(start[0], beta)
+            start = start[0] * self.fractions(start[0], beta, cache=cache)
         if not np.isfinite(start).all() or (start < 0).any() or start.sum() > 1.0:
             raise InputError(f"`initial` must be non-negative with total density <= 1 (got {start})")
         times = np.linspace(0.0, t_end, points)
         solution = solve_ivp(
-            lambda t, z: self.rhs(z, beta), (0.0, t_end), start, t_eval=times,
+            lambda t, z: self.rhs(z, beta, cache=cache), (0.0, t_end), start, t_eval=times,
             method="LSODA", rtol=rtol, atol=1e-12,
         )
         values = solution.y.T
         if self.tau is None:
             density = values[:, 0]
-            compartments = np.stack([d * self.fractions(min(max(d, 0.0), 1.0), beta) for d in density])
+            compartments = density[:, None] * self.fractions(np.clip(density, 0.0, 1.0), beta, cache=cache)
         else:
             compartments = values
             density = values.sum(axis=1)
         return Trajectory(solution.t, compartments, density, bool(solution.success), solution.message)
 
     # ------------------------------------------------------------- equilibria
-    def _jacobian(self, compartments: np.ndarray, beta: float) -> np.ndarray:
+    def _jacobian(self, compartments: np.ndarray, beta: float, cache: LawCache) -> np.ndarray:
         rho = float(compartments.sum())
-        f = self.fractions(rho, beta)
-        slope = derivative(lambda r: self.fractions(r, beta), rho, step=1e-4)
+        f = self.fractions(rho, beta, cache=cache)
+        slope = derivative(lambda r: self.fractions(r, beta, cache=cache), rho, step=1e-4, vectorised=True)
         a = self.net_rates(rho)
         a_slope = -self.division - self.crowding
         jac = np.diag(a - 1.0 / self.tau)
         jac += np.outer(compartments * a_slope + (f + rho * slope) / self.tau, np.ones(f.size))
         return jac
 
-    def _equilibrium(self, rho: float, beta: float) -> Equilibrium:
+    def _equilibrium(self, rho: float, beta: float, cache: LawCache) -> Equilibrium:
         if self.tau is None:
-            g = self.growth(rho, beta)
+            g = self.growth(rho, beta, cache=cache)
             # A small step keeps the difference on one side of nearby kinks of the law.
-            eigen = g + rho * derivative(lambda r: self.growth(r, beta), rho, step=1e-6)
+            eigen = g + rho * derivative(lambda r: self.growth(r, beta, cache=cache), rho, step=1e-6,
+                                         vectorised=True)
             eigenvalues = np.array([eigen])
-            compartments = rho * self.fractions(rho, beta)
+            compartments = rho * self.fractions(rho, beta, cache=cache)
         else:
             if rho == 0.0:
                 compartments = np.zeros(self.division.size)
             else:
-                compartments = rho * self.fractions(rho, beta) / (1.0 - self.tau * self.net_rates(rho))
-            eigenvalues = np.linalg.eigvals(self._jacobian(compartments, beta))
+                compartments = (rho * self.fractions(rho, beta, cache=cache)
+                                / (1.0 - self.tau * self.net_rates(rho)))
+            eigenvalues = np.linalg.eigvals(self._jacobian(compartments, beta, cache))
         return Equilibrium(
             density=float(rho), stable=bool(np.all(eigenvalues.real < 0)),
             eigenvalues=eigenvalues, compartments=compartments,
         )
 
-    def equilibria(self, beta, *, points: int = 201) -> list[Equilibrium]:
-        """Every equilibrium in ``[0, 1]`` at ``beta``, zero first, by increasing density."""
+    def equilibria(self, beta, *, points: int = 201, cache=None) -> list[Equilibrium]:
+        """Every equilibrium in ``[0, 1]`` at ``beta``, zero first, by increasing density.
+
+        The reduced equation is scalar in the total density (with finite ``tau`` too), so it is
+        sampled on ``points`` densities in one vector call and polished by Brent's method.
+        """
         beta = as_nonnegative(beta, "beta")
-        roots = roots_on_unit_interval(lambda r: self.reduced(r, beta), points=points)
+        cache = _context(cache)
+
+        def H(r):
+            return self.reduced(r, beta, cache=cache)
+
+        roots = roots_on_unit_interval(H, points=points, many=H)
         # Brent's method can also converge onto a jump of the reduced equation (where growth
         # outruns switching); keep true roots, judged against the equation's own scale.
-        scale = max(abs(self.reduced(r, beta)) for r in np.linspace(0.0, 1.0, 11)
-                    if np.isfinite(self.reduced(r, beta))) if roots else 1.0
-        roots = [r for r in roots if abs(self.reduced(r, beta)) <= 1e-8 * max(scale, 1e-300)]
-        return [self._equilibrium(0.0, beta)] + [self._equilibrium(r, beta) for r in roots]
+        if roots:
+            coarse = np.abs(H(np.linspace(0.0, 1.0, 11)))
+            scale = float(np.max(coarse[np.isfinite(coarse)]))
+        else:
+            scale = 1.0
+        roots = [r for r in roots if abs(H(r)) <= 1e-8 * max(scale, 1e-300)]
+        return [self._equilibrium(0.0, beta, cache)] + [self._equilibrium(r, beta, cache) for r in roots]
 
-    def low_density_growth(self, beta) -> float:
+    def low_density_growth(self, beta, *, cache=None) -> float:
         """Growth rate of a rare population: the leading eigenvalue at zero density."""
-        return float(np.max(self._equilibrium(0.0, as_nonnegative(beta, "beta")).eigenvalues.real))
+        found = self._equilibrium(0.0, as_nonnegative(beta, "beta"), _context(cache))
+        return float(np.max(found.eigenvalues.real))
 
-    def regime(self, beta, *, points: int = 201) -> str:
+    def regime(self, beta, *, points: int = 201, cache=None) -> str:
         """One of :data:`REGIMES` at ``beta``."""
-        found = self.equilibria(beta, points=points)
+        cache = _context(cache)
+        found = self.equilibria(beta, points=points, cache=cache)
         if not any(e.stable for e in found[1:]):
             return "extinction"
         if found[0].stable:
             return "strong-allee"
-        rising = derivative(lambda r: self.reduced(r, beta), 0.0, step=1e-4) > 0
+        rising = derivative(lambda r: self.reduced(r, beta, cache=cache), 0.0, step=1e-4, vectorised=True) > 0
         return "weak-allee" if rising else "monostable"
 
-    def allee_threshold(self, beta, *, points: int = 201) -> float | None:
+    def allee_threshold(self, beta, *, points: int = 201, cache=None) -> float | None:
         """Density below which the population declines (strong Allee effect), else ``None``."""
-        found = self.equilibria(beta, points=points)
+        found = self.equilibria(beta, points=points, cache=cache)
         if not found[0].stable:
             return None
         stable = [e.density for e in found[1:] if e.stable]
@@ -335,24 +342,32 @@ class MeanField:
         return unstable[-1] if unstable else None
 
     # ------------------------------------------------------------ continuation
-    def along(self, parameter: str, *, beta=None) -> "_Along":
-        """The model as a family in one scalar parameter (see :data:`PARAMETERS`)."""
+    def along(self, parameter: str, *, beta=None, cache=None) -> Family:
+        """The model as a family in one scalar parameter (see :data:`PARAMETERS`).
+
+        The family's members share ``cache`` (a fresh :class:`LawCache` if not given, kept
+        as the family's ``cache`` attribute).
+        """
         choice(parameter, "parameter", PARAMETERS)
         if parameter != "beta" and parameter != "cost_per_bit":
             if beta is None:
                 raise InputError(f"`beta` must be given to continue in {parameter!r}")
             beta = as_nonnegative(beta, "beta")
-        return _Along(self, parameter, beta)
+        return Family(self, parameter, beta, _context(cache))
 
     def continuation(
-        self, start, stop, *, parameter: str = "beta", beta=None, samples: int = 41, ds: float = 0.01
+        self, start, stop, *, parameter: str = "beta", beta=None, samples: int = 41, ds: float = 0.01,
+        cache=None, on_progress=None,
     ) -> BifurcationDiagram:
         """Branches of equilibria for a parameter in ``[start, stop]`` and their critical points.
 
         Positive branches are followed by pseudo-arclength continuation from the equilibria
         at both ends of the range and from every transcritical point. Transcritical points are
         roots of the low-density growth rate in the parameter (Brent's method, to 1e-12);
-        folds are turning points of a branch, located as extrema of ``value(density)``.
+        folds are turning points of a branch, located as extrema of ``value(density)``. With
+        finite ``tau`` the stability of branch points comes from full Jacobians at a few
+        points of each stretch between sign changes of ``dH/drho`` (see
+        ``_diagram.branch_stability``).
 
         Parameters
         ----------
@@ -362,77 +377,17 @@ class MeanField:
             ``*_scale`` multiplies every phenotype's rate; ``tau`` needs a finite-tau model.
         beta : float
             Fixed sensitivity when continuing in another parameter.
+        cache : LawCache, optional
+            Laws to reuse and keep (a fresh cache for this call if not given).
+        on_progress : callable, optional
+            ``on_progress(done, total)`` after each sample of the zero state and each branch
+            (for a progress line with the time left); ``done == total`` at the end.
         """
-        family = self.along(parameter, beta=beta)
-        lo = family.check(start, "start")
-        hi = family.check(stop, "stop")
-        if not hi > lo:
-            raise InputError(f"`stop` must exceed `start` (got {lo!r} and {hi!r})")
-        grid = np.linspace(lo, hi, samples)
-        zero = np.array([family.low_density_growth(v) for v in grid])
-        critical = []
-        for i in range(samples - 1):
-            if zero[i] == 0.0:
-                critical.append(family.point(float(grid[i]), "transcritical", 0.0))
-            elif zero[i] * zero[i + 1] < 0:
-                value = brentq(family.low_density_growth, grid[i], grid[i + 1], xtol=1e-13,
-                               rtol=4 * np.finfo(float).eps)
-                critical.append(family.point(float(value), "transcritical", 0.0))
-        H = family.reduced
-        starts = []
-        for value, direction in ((lo, (0.0, 1.0)), (hi, (0.0, -1.0))):
-            for eq in family.equilibria(value)[1:]:
-                starts.append((eq.density, value, direction))
-        for point in critical:
-            starts.append((1e-9, point.value, (1.0, 0.0)))
-        branches = []
-        for rho, value, direction in starts:
-            if any(_near(branch, rho, value, lo, hi) for branch in branches):
-                continue
-            densities, values, slopes, ended = trace_branch(
-                H, rho, value, direction=direction, beta_min=lo, beta_max=hi, ds=ds
-            )
-            if self.tau is None:
-                # rho' = rho g(rho): the eigenvalue at a positive root is rho g'(rho).
-                stable = slopes < 0
-            else:
-                stable = np.array([family.equilibrium(r, v).stable for r, v in zip(densities, values)])
-            densities, values, stable = _clip_to_range(H, densities, values, stable, lo, hi)
-            if densities.size == 0:
-                continue
-            branches.append(Branch(densities, values, stable, ended))
-            turns = np.sign(np.diff(values))
-            for j in range(1, turns.size):
-                if turns[j - 1] != 0 and turns[j] != 0 and turns[j - 1] != turns[j]:
-                    rho_f, value_f = locate_fold(
-                        H, densities[j - 1], densities[j + 1], values[j], maximum=turns[j - 1] > 0
-                    )
-                    critical.append(family.point(value_f, "fold", rho_f))
-        # A branch whose corrector failed usually ended at a kink of the law (a phenotype
-        # entering or leaving), where two branches can meet in a non-smooth fold. Locate such
-        # points by counting equilibria on either side and bisecting.
-        for branch in branches:
-            if branch.failed:
-                found = _fold_by_counting(family, branch.values[-1], branch.densities[-1], lo, hi)
-                # Two failed branches meeting at one kink give the same point (to ~1e-6).
-                if found is not None and all(
-                    abs(found.value - c.value) > 1e-5 * max(1.0, abs(c.value)) for c in critical
-                ):
-                    critical.append(found)
-        critical.sort(key=lambda c: c.value)
-        # Two branches traced from different starts can share a turning point: keep it once.
-        unique = []
-        for point in critical:
-            if not any(
-                point.kind == kept.kind and abs(point.value - kept.value) <= 1e-7 * max(1.0, abs(kept.value))
-                for kept in unique
-            ):
-                unique.append(point)
-        critical = unique
-        return BifurcationDiagram(
-            parameter=parameter, value_range=(lo, hi), branches=tuple(branches),
-            zero_values=grid, zero_stable=zero < 0, critical_points=tuple(critical),
-        )
+        from ._diagram import diagram
+
+        family = self.along(parameter, beta=beta, cache=cache)
+        return diagram(family, start, stop, finite_tau=self.tau is not None, samples=samples, ds=ds,
+                       on_progress=on_progress)
 
     def critical_betas(self, beta_min, beta_max, **options) -> list[CriticalPoint]:
         """Transcritical points and folds for beta in ``[beta_min, beta_max]``, by increasing beta."""
@@ -442,7 +397,9 @@ class MeanField:
             raise InputError(f"`beta_max` must exceed `beta_min` (got {lo!r} and {hi!r})")
         return list(self.continuation(lo, hi, **options).critical_points)
 
-    def regime_map(self, betas, parameter: str, values, *, points: int = 201, on_row=None) -> "RegimeMap":
+    def regime_map(
+        self, betas, parameter: str, values, *, points: int = 201, on_row=None, cache=None
+    ) -> RegimeMap:
         """Regimes over a grid of beta x a second parameter, from critical-point continuation.
 
         For each value of the second parameter the critical betas are found by continuation in
@@ -451,124 +408,12 @@ class MeanField:
         they agree (point by point otherwise: weak Allee vs monostable is decided by the slope
         of growth at zero density, which can change inside an interval). ``on_row(done, total)``,
         if given, is called after each value of the second parameter (for progress bars).
+        Every row shares one :class:`LawCache` (``cache``, or a fresh one): the law does not
+        depend on rates or ``tau``, so it is derived once per density and beta for the map.
         """
-        beta_grid = as_array(betas, "betas", ndim=1)
-        value_grid = as_array(values, "values", ndim=1)
-        if beta_grid.size < 2 or not (np.diff(beta_grid) > 0).all():
-            raise InputError("`betas` must be strictly increasing, at least 2 of them")
-        choice(parameter, "parameter", PARAMETERS[2:])
-        codes = np.empty((value_grid.size, beta_grid.size), dtype=int)
-        curves = []
-        for i, value in enumerate(value_grid):
-            variant = self.along(parameter, beta=beta_grid[0]).model_at(value)
-            found = variant.critical_betas(beta_grid[0], beta_grid[-1])
-            curves.append(tuple(found))
-            cuts = [beta_grid[0]] + [c.beta for c in found] + [beta_grid[-1]]
-            for a, b in zip(cuts[:-1], cuts[1:]):
-                inside = np.flatnonzero((beta_grid >= a) & (beta_grid <= b))
-                if not inside.size:
-                    continue
-                # Weak Allee vs monostable turns on the slope of growth at zero density, which
-                # is no bifurcation: if the interval's ends disagree, classify every point.
-                ends = {variant.regime(beta_grid[j], points=points) for j in (inside[0], inside[-1])}
-                ends.add(variant.regime(0.5 * (a + b), points=points))
-                if len(ends) == 1:
-                    codes[i, inside] = REGIMES.index(ends.pop())
-                else:
-                    for j in inside:
-                        codes[i, j] = REGIMES.index(variant.regime(beta_grid[j], points=points))
-            if on_row is not None:
-                on_row(i + 1, value_grid.size)
-        return RegimeMap(beta_grid, parameter, value_grid, codes, tuple(curves))
+        return regime_map(self, betas, parameter, values, points=points, on_row=on_row,
+                          cache=_context(cache))
 
     def __repr__(self) -> str:
         limit = "fast switching" if self.tau is None else f"tau={self.tau:g}"
         return f"MeanField({self.division.size} phenotypes, {self.objective}, {limit})"
-
-
-class _Along:
-    """A model seen as a one-parameter family (shares the model's cache of laws)."""
-
-    def __init__(self, model: MeanField, parameter: str, beta):
-        self.model = model
-        self.parameter = parameter
-        self.beta = beta
-
-    def check(self, value, name: str) -> float:
-        number = as_nonnegative(value, name)
-        if self.parameter in ("cost_per_bit", "tau") and number == 0:
-            raise InputError(f"`{name}` must be > 0 for {self.parameter!r} (got {number!r})")
-        return number
-
-    def model_at(self, value) -> MeanField:
-        if self.parameter in ("beta", "cost_per_bit"):
-            return self.model
-        variant = copy.copy(self.model)
-        if self.parameter == "death_scale":
-            variant.death = self.model.death * value
-            variant.crowding = self.model.crowding * value
-        elif self.parameter == "division_scale":
-            variant.division = self.model.division * value
-        else:
-            if self.model.tau is None:
-                raise InputError("continuing in 'tau' needs a model with a finite `tau`")
-            variant.tau = float(value)
-        return variant
-
-    def beta_at(self, value) -> float:
-        if self.parameter == "beta":
-            return float(value)
-        if self.parameter == "cost_per_bit":
-            return beta_from_cost(value)
-        return self.beta
-
-    def reduced(self, rho, value):
-        if self.parameter == "cost_per_bit" and value <= 0:
-            return np.nan
-        return self.model_at(value).reduced(rho, self.beta_at(value))
-
-    def low_density_growth(self, value):
-        return self.model_at(value).low_density_growth(self.beta_at(value))
-
-    def equilibria(self, value):
-        return self.model_at(value).equilibria(self.beta_at(value))
-
-    def equilibrium(self, rho, value):
-        return self.model_at(value)._equilibrium(rho, self.beta_at(value))
-
-    def point(self, value: float, kind: str, density: float) -> CriticalPoint:
-        return CriticalPoint(self.beta_at(value), kind, density, self.parameter, float(value))
-
-
-@dataclass(frozen=True, repr=False)
-class RegimeMap:
-    """Regimes over beta x a second parameter.
-
-    Attributes
-    ----------
-    betas : ndarray, shape (k,)
-    parameter : str
-    values : ndarray, shape (v,)
-    codes : ndarray of int, shape (v, k)
-        Index into :data:`REGIMES`.
-    critical : tuple of tuples of CriticalPoint
-        The critical betas found for each value of the second parameter.
-    """
-
-    betas: np.ndarray
-    parameter: str
-    values: np.ndarray
-    codes: np.ndarray
-    critical: tuple
-
-    @property
-    def regimes(self) -> np.ndarray:
-        """Regime names, shape (v, k)."""
-        return np.asarray(REGIMES, dtype=object)[self.codes]
-
-    def __repr__(self) -> str:
-        seen = sorted({REGIMES[c] for c in np.unique(self.codes)})
-        return (
-            f"RegimeMap({self.values.size} {self.parameter} x {self.betas.size} beta, "
-            f"regimes: {', '.join(seen)})"
-        )

@@ -42,25 +42,35 @@ class Equilibrium:
         return f"Equilibrium(density={self.density:.6g}, {kind}, leading eigenvalue {lead:.4g})"
 
 
-def derivative(function, x: float, step: float = 1e-4, lower: float = 0.0, upper: float = 1.0):
-    """Fourth-order finite difference: central inside ``[lower, upper]``, one-sided at its ends."""
+def derivative(function, x: float, step: float = 1e-4, lower: float = 0.0, upper: float = 1.0,
+               *, vectorised: bool = False):
+    """Fourth-order finite difference: central inside ``[lower, upper]``, one-sided at its ends.
+
+    With ``vectorised=True`` ``function`` is called once with the vector of stencil points
+    (its values stacked along the first axis).
+    """
     if x - 2 * step >= lower and x + 2 * step <= upper:
-        return (
-            -function(x + 2 * step) + 8 * function(x + step) - 8 * function(x - step) + function(x - 2 * step)
-        ) / (12 * step)
-    sign = 1.0 if x - 2 * step < lower else -1.0
-    values = [function(x + k * sign * step) for k in range(5)]
-    return sign * (-25 * values[0] + 48 * values[1] - 36 * values[2] + 16 * values[3] - 3 * values[4]) / (12 * step)
+        offsets, weights, sign = np.array([2.0, 1.0, -1.0, -2.0]), np.array([-1.0, 8.0, -8.0, 1.0]), 1.0
+    else:
+        sign = 1.0 if x - 2 * step < lower else -1.0
+        offsets, weights = sign * np.arange(5.0), np.array([-25.0, 48.0, -36.0, 16.0, -3.0])
+    points = x + offsets * step
+    if vectorised:
+        values = np.asarray(function(points), dtype=float)
+    else:
+        values = np.array([function(p) for p in points], dtype=float)
+    return sign * np.tensordot(weights, values, axes=1) / (12 * step)
 
 
-def roots_on_unit_interval(function, *, points: int = 201, xtol: float = 1e-13) -> list[float]:
+def roots_on_unit_interval(function, *, points: int = 201, xtol: float = 1e-13, many=None) -> list[float]:
     """Every root of ``function`` in ``(0, 1]``: sign changes on a grid, polished by Brent's method.
 
     Touching roots (no sign change) are found by minimising ``|function|`` in grid cells where
-    it has a local minimum, and accepted when the minimum is zero to 1e-12.
+    it has a local minimum, and accepted when the minimum is zero to 1e-12. ``many``, if given,
+    evaluates the function on the whole grid in one call.
     """
     grid = np.linspace(0.0, 1.0, points)
-    values = np.array([function(x) for x in grid])
+    values = np.asarray(many(grid), dtype=float) if many is not None else np.array([function(x) for x in grid])
     roots = []
     nudge = 1e-9  # an exact zero on the grid may hide a second root right next to it
     for i in range(1, points):
