@@ -138,7 +138,10 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         dataset.attrs["caution"] = CAUTION
         results.scan = dataset
         progress.stage("continuation of equilibrium branches in beta")
-        results.diagram = model.continuation(pop.betas.start, pop.betas.stop)
+        results.diagram = model.continuation(
+            pop.betas.start, pop.betas.stop,
+            on_progress=lambda done, total: progress.fraction(done, total, "continuation"),
+        )
     if study.regime_map is not None and "regime_map" in chosen:
         spec = study.regime_map
         progress.stage(f"regime map over beta x {spec.parameter}")
