@@ -94,7 +94,7 @@ def summary(curve: switchlaw.Tradeoff, states: np.ndarray, payoff: np.ndarray,
     lines += ["", "q(divide | y) along the grid:", header]
     for i in range(0, curve.betas.size, 30):  # every half decade
         beta = curve.betas[i]
-        row = " ".join(f"{q:5.3f}" for q in curve.probs[i, :, 0])
+        row = " ".join(f"{q:5.3f}" for q in curve.probs_at(i)[:, 0])
         lines.append(
             f"{beta:8.3g} {switchlaw.cost_from_beta(beta):9.3g} "
             f"{curve.information_bits[i]:9.4f} {curve.expected_payoff[i]:7.4f}  {row}"
@@ -131,7 +131,7 @@ def csv_text(curve: switchlaw.Tradeoff, states: np.ndarray) -> str:
              repr(float(curve.conditional_entropy_bits[i])),
              repr(float(curve.expected_payoff[i])),
              repr(float(curve.marginals[i, 0])), repr(float(curve.marginals[i, 1]))]
-            + [repr(float(q)) for q in curve.probs[i, :, 0]]
+            + [repr(float(q)) for q in curve.probs_at(i)[:, 0]]
             + [int(curve.converged[i])]
         )
     return buffer.getvalue()

@@ -101,3 +101,50 @@ def test_bad_beta_grid():
         sl.tradeoff(HAMMING2, [0.8, 0.2], [-1.0, 1.0])
     with pytest.raises(sl.InputError, match="`betas` must be finite"):
         sl.tradeoff(HAMMING2, [0.8, 0.2], [1.0, np.inf])
+
+
+def test_policies_are_rebuilt_from_the_marginals(rng):
+    # The Gibbs form of the min-information policy, q(x|y) = r(x) exp(beta u(y,x)) / Z(y)
+    # (Blahut 1972), written here with scipy's softmax: the curve keeps r and rebuilds q.
+    from scipy.special import softmax
+
+    payoff = rng.normal(size=(25, 4))
+    env = rng.dirichlet(np.ones(25))
+    betas = np.array([0.0, 0.5, 3.0, 20.0])
+    curve = sl.tradeoff(payoff, env, betas)
+    stacked = curve.probs
+    assert stacked.shape == (4, 25, 4)
+    for i, beta in enumerate(betas):
+        q = curve.probs_at(i)
+        np.testing.assert_array_equal(q, stacked[i])
+        np.testing.assert_allclose(env @ q, curve.marginals[i], rtol=1e-12, atol=1e-15)
+        if beta > 0:
+            with np.errstate(divide="ignore"):
+                gibbs = softmax(beta * payoff + np.log(curve.marginals[i]), axis=1)
+            np.testing.assert_allclose(q, gibbs, rtol=1e-9, atol=1e-15)
+        np.testing.assert_allclose(q, sl.solve(payoff, env, beta).probs, rtol=1e-8, atol=1e-13)
+    with pytest.raises(IndexError, match="`index` must be in"):
+        curve.probs_at(4)
+
+
+def test_a_long_curve_does_not_keep_every_policy():
+    # Issue 17: a long curve on a large table must not hold one policy per beta. Keeping
+    # them would trace at least k x the table (80 x 1.6 MB here); common practice, no source.
+    import tracemalloc
+
+    rng = np.random.default_rng(17)
+    payoff = rng.normal(size=(25_000, 8))
+    env = rng.dirichlet(np.ones(25_000))
+    betas = np.geomspace(0.05, 20.0, 80)
+    tracemalloc.start()
+    try:
+        curve = sl.tradeoff(payoff, env, betas)
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert peak < 20 * payoff.nbytes  # every policy kept: > 80 * payoff.nbytes
+    held = sum(getattr(curve, name).nbytes for name in (
+        "betas", "information_bits", "conditional_entropy_bits", "expected_payoff",
+        "marginals", "iterations", "converged"))
+    assert held < payoff.nbytes
+    assert curve.converged.all()

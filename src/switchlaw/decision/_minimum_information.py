@@ -175,15 +175,18 @@ def solve_marginal(
     """
     n = payoff.shape[1]
     allowed = np.ones(n, dtype=bool) if allowed is None else allowed
+    warm = start is not None
     if start is None:
         start = allowed / allowed.sum()
     problem = (gaps or Gaps.build(payoff, env)).at(beta)
-    return METHODS[method](problem, start, allowed=allowed, tol=tol, max_iter=max_iter)
+    return METHODS[method](problem, start, allowed=allowed, tol=tol, max_iter=max_iter, warm=warm)
 
 
-def _newton_with_fallback(problem, start, *, allowed, tol, max_iter) -> MarginalResult:
+def _newton_with_fallback(problem, start, *, allowed, tol, max_iter, warm=False) -> MarginalResult:
     """Newton on the marginal; should it stall, Blahut–Arimoto finishes from where it stopped."""
-    result = newton_marginal(problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500)
+    result = newton_marginal(
+        problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500, warm=warm
+    )
     if result.converged or result.policy_uncertified:
         return result  # Blahut–Arimoto cannot resolve what rounding hides from Newton
     fallback = blahut_arimoto_marginal(problem, result.marginal, allowed=allowed, tol=tol)
@@ -196,7 +199,8 @@ def _newton_with_fallback(problem, start, *, allowed, tol, max_iter) -> Marginal
     )
 
 
-def _blahut_arimoto(problem, start, *, allowed, tol, max_iter) -> MarginalResult:
+def _blahut_arimoto(problem, start, *, allowed, tol, max_iter, warm=False) -> MarginalResult:
+    del warm  # the alternation mixes any start with the uniform marginal
     return blahut_arimoto_marginal(
         problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 100_000
     )
@@ -216,11 +220,15 @@ def minimum_information_marginal(
     tol: float = 1e-12,
     max_iter: int | None = None,
     prepared: Prepared | None = None,
+    past_first: bool = False,
 ) -> tuple[np.ndarray, MarginalResult, str]:
     """Optimal marginal over all phenotypes (duplicates merged), and the status word.
 
     Returns the marginal over the original phenotypes, the solver record, and ``status``.
-    ``prepared`` is ``Prepared.build(payoff, env)`` when the caller already has it.
+    ``prepared`` is ``Prepared.build(payoff, env)`` when the caller already has it;
+    ``past_first`` says that the caller knows ``beta`` to be above the first critical beta
+    (along increasing betas, once one beta is: the test of :func:`stays_deterministic` is
+    a convex function of beta equal to one at zero, so it stays above one).
     """
     n = payoff.shape[1]
     if n == 1:
@@ -232,7 +240,7 @@ def minimum_information_marginal(
         return r, record, "closed-form"
     prepared = prepared or Prepared.build(payoff, env)
     distinct = prepared.distinct
-    if stays_deterministic(distinct, env, beta):
+    if not past_first and stays_deterministic(distinct, env, beta):
         r_distinct = np.zeros(distinct.shape[1])
         r_distinct[int(np.argmax(best_on_average(distinct, env)))] = 1.0
         record = MarginalResult(

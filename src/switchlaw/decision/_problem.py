@@ -22,7 +22,7 @@ import numpy as np
 from scipy.special import logsumexp
 
 #: Partition sums below this are recomputed in log domain.
-_UNDERFLOW = 1e-250
+UNDERFLOW = 1e-250
 #: Cap for ``exp(beta u) / Z`` of phenotypes outside the support (avoids inf - inf).
 _BIG = 1e300
 
@@ -115,7 +115,7 @@ def log_partition(problem: Reduced, r: np.ndarray) -> tuple[np.ndarray, np.ndarr
     Returns the logs and the mask of rows that needed the log domain.
     """
     z = problem.expo @ r
-    low = ~(z > _UNDERFLOW)
+    low = ~(z > UNDERFLOW)
     with np.errstate(divide="ignore"):
         log_z = np.log(z)
     if low.any():
@@ -155,3 +155,30 @@ def policy_from_marginal(payoff: np.ndarray, beta: float, r: np.ndarray) -> np.n
     q = np.exp(logits)
     q /= q.sum(axis=1, keepdims=True)
     return q
+
+
+def max_entropy_policy(payoff: np.ndarray, beta: float, reference: np.ndarray | None) -> np.ndarray:
+    """``q(x|y) ∝ pi(x) exp(beta u(y,x))`` (Jaynes 1957); ``pi`` uniform if not given."""
+    logits = beta * payoff
+    if reference is not None:
+        with np.errstate(divide="ignore"):
+            logits = logits + np.log(reference)[None, :]
+    logits = logits - logits.max(axis=1, keepdims=True)
+    q = np.exp(logits)
+    return q / q.sum(axis=1, keepdims=True)
+
+
+def curve_policy(
+    payoff: np.ndarray, beta: float, objective: str, marginal: np.ndarray,
+    reference: np.ndarray | None = None,
+) -> np.ndarray:
+    """The policy of one point of a trade-off curve, rebuilt from what the curve keeps.
+
+    Min-information: the Gibbs policy of the solver's marginal (``beta = 0``: the marginal in
+    every state), exactly as :func:`switchlaw.solve` forms it; max-entropy: the softmax.
+    """
+    if objective == "max-entropy":
+        return max_entropy_policy(payoff, beta, reference)
+    if beta == 0:
+        return np.tile(marginal, (payoff.shape[0], 1))
+    return policy_from_marginal(payoff, beta, marginal)

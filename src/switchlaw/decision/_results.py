@@ -6,6 +6,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ._problem import curve_policy
+
 
 def _fmt(value: float) -> str:
     return f"{value:.6g}"
@@ -102,12 +104,17 @@ class CriticalBeta:
 class Tradeoff:
     """Solutions along a grid of betas: the information–payoff curve.
 
+    The curve keeps one marginal per beta, not one policy: a policy is rebuilt on request
+    (:meth:`probs_at`) from the payoff table and its marginal, exactly as
+    :func:`switchlaw.solve` forms it, so a long curve on a large table holds a few arrays of
+    the table's size instead of one per beta.
+
     Attributes
     ----------
     betas : ndarray, shape (k,)
     information_bits, conditional_entropy_bits, expected_payoff : ndarray, shape (k,)
-    probs : ndarray, shape (k, states, phenotypes)
     marginals : ndarray, shape (k, phenotypes)
+        ``r(x) = sum_y p(y) q(x | y)`` of each policy.
     iterations : ndarray of int, shape (k,)
     converged : ndarray of bool, shape (k,)
     critical_betas : tuple of CriticalBeta
@@ -115,24 +122,47 @@ class Tradeoff:
         phenotypes in use changes, each located to about 1e-12 relative in beta (transitions that both
         start and end between two neighbouring grid points are not seen).
     objective : str
+    probs : ndarray, shape (k, states, phenotypes)
+        Every policy, rebuilt on each access (``k`` times the payoff table's memory; prefer
+        :meth:`probs_at` on large tables).
     """
 
     betas: np.ndarray
     information_bits: np.ndarray
     conditional_entropy_bits: np.ndarray
     expected_payoff: np.ndarray
-    probs: np.ndarray
     marginals: np.ndarray
     iterations: np.ndarray
     converged: np.ndarray
     critical_betas: tuple = field(default=())
     objective: str = "min-information"
+    #: What rebuilds a policy: the payoff table over the states decided on, the solver's
+    #: marginal per beta (min-information) and the reference distribution (max-entropy).
+    _payoff: np.ndarray | None = field(default=None, repr=False)
+    _solver_marginals: np.ndarray | None = field(default=None, repr=False)
+    _reference: np.ndarray | None = field(default=None, repr=False)
+
+    def probs_at(self, index: int) -> np.ndarray:
+        """The policy ``q(x | y)`` at ``betas[index]``, shape (states, phenotypes)."""
+        k = self.betas.size
+        if not -k <= index < k:
+            raise IndexError(f"`index` must be in [{-k}, {k}) (got {index!r})")
+        return curve_policy(
+            self._payoff, float(self.betas[index]), self.objective,
+            self._solver_marginals[index], self._reference,
+        )
+
+    @property
+    def probs(self) -> np.ndarray:
+        """Every policy, shape (k, states, phenotypes), rebuilt from the marginals."""
+        return np.stack([self.probs_at(i) for i in range(self.betas.size)])
 
     def to_xarray(self, *, states=None, phenotypes=None):
         """Labelled copy as an ``xarray.Dataset`` with units and long names."""
         import xarray as xr
 
-        k, m, n = self.probs.shape
+        k = self.betas.size
+        m, n = self._payoff.shape
         states = np.arange(m) if states is None else np.asarray(states)
         phenotypes = np.arange(n) if phenotypes is None else np.asarray(phenotypes)
         coords = {
@@ -166,7 +196,8 @@ class Tradeoff:
         )
 
     def __repr__(self) -> str:
-        k, m, n = self.probs.shape
+        k = self.betas.size
+        m, n = self._payoff.shape
         crit = ", ".join(f"{c.beta:.6g}" for c in self.critical_betas) or "none"
         return (
             f"Tradeoff({self.objective}, {k} betas in [{_fmt(self.betas.min())}, "

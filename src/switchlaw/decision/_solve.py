@@ -12,8 +12,8 @@ from .._validate import as_distribution, as_positive, choice
 from ..information._measures import NATS_PER_BIT, _mutual_information_nats
 from ._inputs import as_beta, as_max_iter, check_problem
 from ._minimum_information import METHODS, minimum_information_marginal, policy_for_marginal
+from ._problem import max_entropy_policy
 from ._results import Policy
-
 
 
 #: Taylor coefficients of ``((1 + x) log(1 + x) - x) / x^2 = sum_j (-1)^j x^j / ((j+1)(j+2))``;
@@ -21,7 +21,7 @@ from ._results import Policy
 _SERIES = np.array([(-1) ** j / ((j + 1) * (j + 2)) for j in range(10)])
 
 
-def _excess_of_log(x: np.ndarray) -> np.ndarray:
+def excess_of_log(x: np.ndarray) -> np.ndarray:
     """``(1 + x) log(1 + x) - x >= 0`` without cancellation (series below ``|x| = 0.01``)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         out = (1 + x) * np.log1p(x) - x
@@ -51,7 +51,7 @@ def information_nats(env: np.ndarray, probs: np.ndarray) -> float:
     if not used.any():
         return 0.0
     x = q[:, used] / r[used] - 1.0
-    terms = _excess_of_log(x) * r[used]
+    terms = excess_of_log(x) * r[used]
     value = float(p @ terms.sum(axis=1))
     if not np.isfinite(value):
         return _mutual_information_nats(env, probs)
@@ -71,6 +71,15 @@ def expected_payoff(env: np.ndarray, probs: np.ndarray, payoff: np.ndarray) -> f
     return float(means[star] + gain)
 
 
+def policy_figures(payoff: np.ndarray, env: np.ndarray, probs: np.ndarray) -> tuple[float, float, float]:
+    """``I(X;Y)`` (bits), ``H(X|Y)`` (bits) and ``E[u]`` (payoff units) of a policy."""
+    return (
+        information_nats(env, probs) / NATS_PER_BIT,
+        float(env @ entr(probs).sum(axis=1)) / NATS_PER_BIT,
+        expected_payoff(env, probs, payoff),
+    )
+
+
 def make_policy(
     payoff: np.ndarray,
     env: np.ndarray,
@@ -88,12 +97,13 @@ def make_policy(
 ) -> Policy:
     """Assemble a :class:`Policy` with its information and payoff figures."""
     marginal = env @ probs if marginal is None else marginal
+    information, entropy, payoff_value = policy_figures(payoff, env, probs)
     return Policy(
         probs=probs,
         marginal=marginal,
-        information_bits=information_nats(env, probs) / NATS_PER_BIT,
-        conditional_entropy_bits=float(env @ entr(probs).sum(axis=1)) / NATS_PER_BIT,
-        expected_payoff=expected_payoff(env, probs, payoff),
+        information_bits=information,
+        conditional_entropy_bits=entropy,
+        expected_payoff=payoff_value,
         beta=beta,
         objective=objective,
         converged=converged,
@@ -103,17 +113,6 @@ def make_policy(
         gap_nats=gap_nats,
         method=method,
     )
-
-
-def max_entropy_policy(payoff: np.ndarray, beta: float, reference: np.ndarray | None) -> np.ndarray:
-    """``q(x|y) ∝ pi(x) exp(beta u(y,x))`` (Jaynes 1957); ``pi`` uniform if not given."""
-    logits = beta * payoff
-    if reference is not None:
-        with np.errstate(divide="ignore"):
-            logits = logits + np.log(reference)[None, :]
-    logits = logits - logits.max(axis=1, keepdims=True)
-    q = np.exp(logits)
-    return q / q.sum(axis=1, keepdims=True)
 
 
 def solve(

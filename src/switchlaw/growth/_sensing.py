@@ -92,7 +92,9 @@ def sensing_tradeoff(
             f"`payoff` must have one column per phenotype ({f.shape[1]}) (got shape {u.shape})"
         )
     curve = tradeoff(u, cue_probs, grid)
-    growth = np.array([memoryless_growth(f, p, q, channel) for q in curve.probs])
+    growth = np.array(
+        [memoryless_growth(f, p, curve.probs_at(i), channel) for i in range(grid.size)]
+    )
     net = growth - cost * curve.information_bits
 
     def net_at(beta: float):
