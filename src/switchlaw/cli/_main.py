@@ -86,7 +86,12 @@ def _demo_text(name: str) -> str:
     return resources.files("switchlaw.cli").joinpath("studies", f"{name}.toml").read_text(encoding="utf-8")
 
 
-def _run(text: str, source: str, args) -> int:
+def demo_dir() -> Path:
+    """The folder of the built-in studies (their data files are read from it)."""
+    return Path(str(resources.files("switchlaw.cli").joinpath("studies")))
+
+
+def _run(text: str, source: str, args, base_dir=None) -> int:
     from .._errors import InputError
     from ._outputs import OutputExists, OutputFolder, check_target
     from ._study import StudyError, load_text
@@ -120,7 +125,7 @@ def _run(text: str, source: str, args) -> int:
     try:
         with OutputFolder(args.out, force=args.force, into_existing=args.into_existing) as folder:
             results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler,
-                          stages=stages)
+                          stages=stages, base_dir=base_dir)
             written = write_outputs(results, folder.work)
             folder.commit()
             out = folder.target
@@ -162,13 +167,13 @@ def main(argv=None) -> int:
         except StudyError as error:
             print(error.lines[0], file=sys.stderr)
             return 2
-        return _run(text, args.study, args)
+        return _run(text, args.study, args, base_dir=Path(args.study).resolve().parent)
     if args.command == "demo":
         try:
             text = _demo_text(args.name)
         except KeyError:
             return _fail(f"unknown demo {args.name!r} (valid: {', '.join(DEMOS)})")
-        return _run(text, f"demo:{args.name}", args)
+        return _run(text, f"demo:{args.name}", args, base_dir=demo_dir())
     if args.command == "compare":
         from ._compare import compare
 

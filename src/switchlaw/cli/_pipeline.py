@@ -15,11 +15,7 @@ import numpy as np
 
 from ._study import Study, environment_function, payoff_functions
 
-CAUTION = (
-    "Research software, not a medical device: these results are hypotheses about cell "
-    "populations under stated assumptions, not predictions or advice for any patient. "
-    "Defer to clinical practice."
-)
+from ._stages import CAUTION
 
 
 class Progress:
@@ -61,6 +57,7 @@ class Results:
     scan: object = None
     regime_map: object = None
     timings: dict = field(default_factory=dict)
+    base_dir: Path | None = None
     stages: set = field(default_factory=set)
     extras: dict = field(default_factory=dict)
     variants: list = field(default_factory=list)
@@ -76,13 +73,14 @@ def _route(study: Study) -> dict:
 
 
 def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None,
-        scheduler: str | None = None, stages: set | None = None) -> Results:
+        scheduler: str | None = None, stages: set | None = None, base_dir=None) -> Results:
     """Compute everything the study asks for (no files written here).
 
     ``jobs`` (local processes) or ``scheduler`` (a Dask scheduler address or file) spread the
     scan over beta; results are identical whatever runs them. ``stages`` (from
     :func:`._stages.select`) limits the run to some stages; by default every stage the
-    study has runs.
+    study has runs. ``base_dir`` is the folder relative paths of the study (data files) are
+    read from (the study file's folder; the current folder when None).
     """
     import switchlaw as sl
 
@@ -113,7 +111,8 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         centre = float(np.nanmedian(law.betas[np.isfinite(law.betas)])) if np.isfinite(law.betas).any() else 1.0
         betas = np.linspace(0.0, 4.0 * max(centre, 1e-3), 81)
     curve = sl.tradeoff(table, env, betas, objective=study.decision.objective)
-    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho, stages=chosen)
+    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho, stages=chosen,
+                      base_dir=None if base_dir is None else Path(base_dir))
     if study.population is None:
         _run_extras(results, payoff, environment, progress, jobs=jobs, scheduler=scheduler, quiet=quiet)
         return results
@@ -183,7 +182,7 @@ def _run_extras(results, payoff, environment, progress, *, jobs, scheduler, quie
             progress.stage(f"variant {name!r}: every stage")
             inner = (chosen - {"variants"}) & _stages.select(variant)
             results.variants.append((name, run(variant, results.text, quiet=True, jobs=jobs,
-                                               scheduler=scheduler, stages=inner)))
+                                               scheduler=scheduler, stages=inner, base_dir=results.base_dir)))
 
 
 def _finite(value):

@@ -189,7 +189,7 @@ def sections_html(results, data: dict, figures: dict) -> str:
                  ", ".join(_g(f, 3) for f in p["tolerant_fraction_after_stress"]),
                  _g(p["regrowth_time"]), _g(p["final_density"])] for p in sch["plans"]]
         treatment = bool(results.study.schedule.treatment)
-        from ._pipeline import CAUTION
+        from ._stages import CAUTION
 
         sections.append({
             "id": "schedule", "title": "Scheduled stress",

@@ -226,7 +226,7 @@ def semantic(study) -> list[tuple[str, str, object]]:
         problems += _rates(sch.stress.division, names, "schedule.stress.division")
         problems += _rates(sch.stress.death, names, "schedule.stress.death")
         from . import _expressions
-        from ._study import PAYOFF_VARIABLES
+        from ._expressions import PAYOFF_VARIABLES
 
         for key, text in sch.stress.payoff.items():
             if key not in names:

@@ -20,6 +20,12 @@ SECTION = {"population": "population", "regime_map": "regime_map", "extinction":
            "lattice": "lattice", "fluctuating": "fluctuating", "schedule": "schedule",
            "sensitivity": "sensitivity", "variants": "variant"}
 
+CAUTION = (
+    "Research software, not a medical device: these results are hypotheses about cell "
+    "populations under stated assumptions, not predictions or advice for any patient. "
+    "Defer to clinical practice."
+)
+
 BETA_UNIT = "nats per payoff unit"
 DENSITY_UNIT = "fraction of sites"
 
@@ -140,9 +146,9 @@ def fluctuating_inputs(study):
     if flu.statistics == "iid":
         probs = np.asarray(flu.probabilities, dtype=float)
     elif flu.statistics == "periodic":
-        probs = sl.PeriodicEnvironment(list(range(n)), [int(d) for d in flu.durations]).time_fractions(n)
+        probs = sl.PeriodicHabitat(list(range(n)), [int(d) for d in flu.durations]).time_fractions(n)
     else:
-        probs = sl.MarkovEnvironment(np.asarray(flu.transition, dtype=float)).probs
+        probs = sl.MarkovHabitat(np.asarray(flu.transition, dtype=float)).probs
     return fitness, probs, sl.symmetric_cue(n, flu.cue_error)
 
 

@@ -14,9 +14,10 @@ from typing import Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
+from .._errors import InputError
 from . import _expressions, _sections
 
-PAYOFF_VARIABLES = ("y", "density")
+PAYOFF_VARIABLES = _expressions.PAYOFF_VARIABLES
 PARAMETER_VARIABLES = ("density",)
 
 # Size bounds: what one machine can do in minutes. ``_estimate`` weighs the stages together.
@@ -123,7 +124,7 @@ class Study(_Strict):
     variant: list[_sections.Variant] | None = None
 
 
-class StudyError(ValueError):
+class StudyError(InputError):
     """A study file with problems; ``lines`` holds one line per problem."""
 
     def __init__(self, lines: list[str]):
