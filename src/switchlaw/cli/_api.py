@@ -222,7 +222,7 @@ def _make(text: str, source: str, base_dir: Path, *, seed) -> StudyFile:
     from ._study import load_text
 
     return StudyFile(text=text, source=source, base_dir=Path(base_dir),
-                     spec=load_text(text, source, seed=seed))
+                     spec=load_text(text, source, seed=seed, base_dir=base_dir))
 
 
 def _looks_like_text(value: str) -> bool:

@@ -15,6 +15,7 @@ DEMOS = {
     "colony": "A colony on a hexagonal lattice: divide or roam by occupied neighbours (invented).",
     "dormancy": "Microbes choosing growth or dormancy under a noisy stress cue (invented).",
     "pulsed": "Cells growing or tolerating a stress that comes in pulses, on schedules (invented).",
+    "calibrated": "Fit beta and two payoff parameters to invented counts, then run at the fit (invented).",
 }
 
 
@@ -58,8 +59,9 @@ def _parser() -> argparse.ArgumentParser:
         sub.add_argument("--scheduler", default=None,
                          help="Dask scheduler address (tcp://host:port) or scheduler file for the beta scan")
         sub.add_argument("--only", default=None, metavar="STAGE[,STAGE]",
-                         help="run only these stages (law always runs): law, population, regime_map, "
-                         "extinction, lattice, fluctuating, schedule, sensitivity, variants")
+                         help="run only these stages (law always runs, after calibration if the study has one): "
+                         "calibration, law, population, regime_map, extinction, lattice, front, fluctuating, "
+                         "schedule, sensitivity, variants")
         sub.add_argument("--skip", default=None, metavar="STAGE[,STAGE]", help="skip these stages")
     compare = commands.add_parser("compare", help="a side-by-side report of two finished runs")
     compare.add_argument("first", help="output folder of one run")
@@ -105,7 +107,7 @@ def _run(text: str, source: str, args, base_dir=None) -> int:
     except OutputExists as error:
         return _fail(str(error))
     try:
-        study = load_text(text, source, seed=args.seed)
+        study = load_text(text, source, seed=args.seed, base_dir=base_dir)
     except StudyError as error:
         for line in error.lines:
             print(line, file=sys.stderr)

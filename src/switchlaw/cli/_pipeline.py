@@ -87,10 +87,15 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
     from . import _stages
 
     chosen = _stages.select(study) if stages is None else set(stages)
-    extra = [s for s in _stages.STAGES[3:] if s in chosen]
+    extra = [s for s in chosen if s not in ("law", "population", "regime_map")]
     count = 2 + (2 if study.population and "population" in chosen else 0) + (
         1 if study.regime_map and "regime_map" in chosen else 0) + len(extra)
     progress = Progress(count, quiet)
+    fit = None
+    if study.calibration is not None and "calibration" in chosen:
+        progress.stage("calibration: fitting beta and the payoff parameters to the data")
+        fit = _stages.run_calibration(study, base_dir)
+        study = _stages.fitted_study(study, fit)  # every later stage runs at the estimates
     payoff = payoff_functions(study)
     environment = environment_function(study)
     names = study.study.phenotypes
@@ -113,6 +118,8 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
     curve = sl.tradeoff(table, env, betas, objective=study.decision.objective)
     results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho, stages=chosen,
                       base_dir=None if base_dir is None else Path(base_dir))
+    if fit is not None:
+        results.extras["calibration"] = fit
     if study.population is None:
         _run_extras(results, payoff, environment, progress, jobs=jobs, scheduler=scheduler, quiet=quiet)
         return results
@@ -167,6 +174,9 @@ def _run_extras(results, payoff, environment, progress, *, jobs, scheduler, quie
     if "lattice" in chosen:
         progress.stage("lattice agents with the law")
         extras["lattice"] = _stages.run_lattice(study, payoff, environment)
+    if "front" in chosen:
+        progress.stage("travelling fronts with diffusing phenotypes")
+        extras["front"] = _stages.run_front(study, results.model)
     if "fluctuating" in chosen:
         progress.stage("long-run growth in the fluctuating environment")
         extras["fluctuating"] = _stages.run_fluctuating(study)
@@ -392,10 +402,14 @@ def _extra_figures(results: Results, save, saved: list) -> dict:
 
     extras, made = results.extras, []
     names = list(results.law.phenotypes)
+    if "calibration" in extras:
+        made += _figures.calibration(extras["calibration"])
     if "extinction" in extras:
         made += _figures.extinction(extras["extinction"])
     if "lattice" in extras:
         made += _figures.lattice(extras["lattice"])
+    if "front" in extras:
+        made += _figures.front(extras["front"])
     if "fluctuating" in extras:
         made += _figures.fluctuating(extras["fluctuating"])
     if "schedule" in extras:
