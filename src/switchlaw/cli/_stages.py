@@ -578,7 +578,7 @@ def verdict(data: dict, names) -> dict:
                            "kind": run["kind"], "unit": SPEED_UNIT, "status": run["status"]}
         speed = "no measured speed" if run["speed"] is None else f"speed {_fmt(run['speed'])} {SPEED_UNIT}"
         linear = "" if run["linear_speed"] is None else f" (linear speed c* = {_fmt(run['linear_speed'])})"
-        say(f"At β = {_fmt(run['beta'])} {BETA_UNIT} the front is {run['kind']} with {speed}{linear}; "
+        say(f"At β = {_fmt(run['beta'])} {BETA_UNIT} the front is {run['kind']} with {speed}{linear} "
             f"(status {run['status']}).", "front")
     flu = data.get("fluctuating")
     if flu is not None:
