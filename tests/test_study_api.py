@@ -122,3 +122,28 @@ def test_a_demo_can_be_narrowed_and_rerun():
     assert not math.isclose(max(base["law"]["information_bits"]), max(other["law"]["information_bits"]))
     with pytest.raises(sl.InputError, match="unknown stage"):
         colony.run(only="nothing")
+
+
+def test_summary_numbers_carry_their_units():
+    summary = sl.load_study(QUICK).run().summary
+    units = summary["units"]
+    # Every number of the core keys has a unit (the names are the trade's: nats per payoff unit
+    # for beta, bits for information, fraction of sites for density; common practice, no source).
+    def leaves(value, path):
+        if isinstance(value, dict):
+            for key, inner in value.items():
+                yield from leaves(inner, f"{path}.{key}" if path else key)
+        elif isinstance(value, list):
+            for inner in value:
+                yield from leaves(inner, path)
+        elif isinstance(value, float):
+            yield path
+
+    for key in ("law", "tradeoff", "at_study_beta", "population"):
+        for path in leaves(summary[key], key):
+            parents = [path.rsplit(".", k)[0] for k in range(path.count(".") + 1)]
+            assert any(p in units for p in parents), path
+    assert units["law.betas"] == "nats per payoff unit" and units["law.information_bits"] == "bits"
+    assert summary["verdict"]["beta"]["unit"] == "nats per payoff unit"
+    timed = sl.load_study(QUICK.replace('seed = 3', 'seed = 3\ntime_unit = "hour"')).replace(population=None)
+    assert timed.run().summary["units"]["population.regimes.low_density_growth"] == "per hour"

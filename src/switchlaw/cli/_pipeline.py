@@ -233,6 +233,34 @@ def _scan_rows(dataset) -> list[dict]:
     return rows
 
 
+def units(time_unit: str | None = None, route: str = "beta") -> dict:
+    """The unit of every number of summary.json's core keys, by dotted key path.
+
+    Each optional section's key carries its own ``units`` (or ``unit``) beside its values; the
+    verdict quotes each number with its unit. Rates are per the study's time unit.
+    """
+    from ._stages import BETA_UNIT, DENSITY_UNIT
+
+    per_time = f"per {time_unit}" if time_unit else "per time unit"
+    return {
+        "law.betas": BETA_UNIT, "law.densities": DENSITY_UNIT, "law.information_bits": "bits",
+        "law.expected_payoff": "payoff units",
+        "law.setting": {"beta": BETA_UNIT, "cost_per_bit": "payoff units per bit", "bits": "bits"}[route],
+        "tradeoff.reference_density": DENSITY_UNIT, "tradeoff.critical_betas.beta": BETA_UNIT,
+        "at_study_beta.beta": BETA_UNIT, "at_study_beta.allee_threshold": DENSITY_UNIT,
+        "population.regimes.beta": BETA_UNIT, "population.regimes.low_density_growth": per_time,
+        "population.regimes.largest_stable_density": DENSITY_UNIT,
+        "population.regimes.allee_threshold": DENSITY_UNIT,
+        "population.critical_betas.beta": BETA_UNIT, "population.critical_betas.density": DENSITY_UNIT,
+        "regime_map.betas": BETA_UNIT, "regime_map.values": "scale factor (dimensionless)",
+        "sensitivity.beta": BETA_UNIT,
+        "sensitivity.equilibria.derivatives": "fraction of sites per unit of the parameter",
+        "sensitivity.critical_betas.derivatives": "nats per payoff unit per unit of the parameter",
+        "sensitivity.sobol": "dimensionless (share of variance)",
+        "time": time_unit or "time units",
+    }
+
+
 def summary(results: Results) -> dict:
     """The machine-readable summary written as summary.json."""
     import switchlaw as sl
@@ -289,6 +317,7 @@ def summary(results: Results) -> dict:
                            for name, inner in results.variants]
     out["verdict"] = _stages.verdict(out, law.phenotypes)
     out["stages"] = [s for s in _stages.STAGES if s in results.stages]
+    out["units"] = units(results.study.study.time_unit, law.route)
     if results.regime_map is not None:
         rm = results.regime_map
         out["regime_map"] = {
