@@ -102,7 +102,7 @@ def test_demo_writes_everything_and_refuses_to_overwrite(tmp_path, capsys):
     assert "transcritical" in kinds and "fold" in kinds
     regimes = {r["regime"] for r in summary["population"]["regimes"]}
     assert {"strong-allee", "extinction"} <= regimes  # a regime change in beta
-    report = (out / "report.html").read_text()
+    report = (out / "report.html").read_text(encoding="utf-8")
     assert "not a medical device" in report and report.count("data:image/png;base64,") >= 4
     assert (out / "figures" / "bifurcation.svg").exists()
     assert main(["demo", "colony", "--out", str(out), "--quiet"]) == 2
@@ -128,7 +128,7 @@ def test_pulsed_demo_compares_schedules_with_the_caution(tmp_path):
     assert all(len(p["tolerant_fraction_after_stress"]) == p["cycles"] for p in plans)
     assert summary["variants"][0]["name"] == "noisier receptor"
     assert summary["fluctuating"]["best_net_growth"] <= summary["fluctuating"]["optimal_growth_with_cue"]
-    report = (out / "report.html").read_text()
+    report = (out / "report.html").read_text(encoding="utf-8")
     schedule = report[report.index('<section id="schedule">'):]
     schedule = schedule[:schedule.index("</section>")]
     assert "Research use only" in schedule and "not a medical device" in schedule.lower()

@@ -91,7 +91,7 @@ def small_run(tmp_path_factory):
     study.write_text(SMALL, encoding="utf-8")
     out = folder / "out"
     assert main(["run", str(study), "--out", str(out), "--quiet"]) == 0
-    return study, out, json.loads((out / "summary.json").read_text())
+    return study, out, json.loads((out / "summary.json").read_text(encoding="utf-8"))
 
 
 def _model():
@@ -158,7 +158,7 @@ def test_verdict_numbers_equal_the_api(small_run):
 
 def test_report_leads_with_the_verdict_and_keeps_the_study_last(small_run):
     _, out, _ = small_run
-    report = (out / "report.html").read_text()
+    report = (out / "report.html").read_text(encoding="utf-8")
     verdict, first_figure, study = report.index('id="verdict"'), report.index("<figure"), report.index('id="study"')
     assert verdict < first_figure < study
     assert report.count("<figure") == report.count("<figcaption>") >= 11
@@ -171,13 +171,13 @@ def test_only_and_skip_choose_stages(small_run, tmp_path, capsys):
     study, _, _ = small_run
     out = tmp_path / "only"
     assert main(["run", str(study), "--out", str(out), "--quiet", "--only", "law,extinction"]) == 0
-    summary = json.loads((out / "summary.json").read_text())
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     assert summary["stages"] == ["law", "extinction"]
     assert "extinction" in summary and "population" not in summary and "lattice" not in summary
     skipped = tmp_path / "skip"
     assert main(["run", str(study), "--out", str(skipped), "--quiet", "--only", "law,schedule,fluctuating",
                  "--skip", "schedule"]) == 0
-    summary = json.loads((skipped / "summary.json").read_text())
+    summary = json.loads((skipped / "summary.json").read_text(encoding="utf-8"))
     assert "fluctuating" in summary and "schedule" not in summary
     for args, message in ((["--only", "law,bogus"], "--only: unknown stage 'bogus'"),
                           (["--skip", "law"], "--skip: the law stage cannot be skipped"),
@@ -194,7 +194,7 @@ def test_compare_writes_one_report(small_run, tmp_path, capsys):
     assert main(["run", str(study), "--out", str(other), "--quiet", "--only", "law,extinction"]) == 0
     both = tmp_path / "both"
     assert main(["compare", str(out), str(other), "--out", str(both)]) == 0
-    page = (both / "report.html").read_text()
+    page = (both / "report.html").read_text(encoding="utf-8")
     assert page.count("data:image/png;base64,") >= 6 and "Not in this run." in page
     assert "Research use only" in page
     assert main(["compare", str(out), str(tmp_path / "missing"), "--out", str(tmp_path / "x")]) == 2
@@ -401,7 +401,7 @@ def test_report_in_a_headless_browser(small_run, tmp_path):
     _, out, _ = small_run
     page = tmp_path / "report.html"
     # The report's Content-Security-Policy forbids scripts; the copy drops it to run the check.
-    text = (out / "report.html").read_text()
+    text = (out / "report.html").read_text(encoding="utf-8")
     text = "\n".join(line for line in text.splitlines() if "Content-Security-Policy" not in line)
     page.write_text(text.replace("</body>", CHECK), encoding="utf-8")
     done = subprocess.run(
