@@ -146,7 +146,7 @@ def test_a_failing_run_leaves_nothing_behind(tmp_path, capsys):
 
 def test_unknown_demo_and_no_command(capsys):
     assert main(["demo", "nowhere", "--out", "x"]) == 2
-    assert "unknown demo 'nowhere' (valid: colony, dormancy, pulsed)" in capsys.readouterr().err
+    assert "unknown demo 'nowhere' (valid: colony, dormancy, pulsed, calibrated)" in capsys.readouterr().err
 
 
 def test_help_imports_nothing_heavy():

@@ -144,6 +144,11 @@ _EXPORTS = {
     "population_verdict": ".calibration",
     "PopulationVerdict": ".calibration",
     "Snapshot": ".calibration",
+    # study files from Python (the command line's pipeline)
+    "demo_study": ".cli._api",
+    "load_study": ".cli._api",
+    "StudyFile": ".cli._api",
+    "StudyResults": ".cli._api",
     # exporters
     "EXPORT_FORMATS": ".exporters",
     "Exported": ".exporters",

@@ -38,11 +38,16 @@ def plot_law(law, *, phenotype=None, axes=None):
     )
     heat.figure.colorbar(image, ax=heat, label=f"q({names[index]} | state, density)")
     heat.set_xlabel("density")
-    heat.set_ylabel("sensed signal value y")
-    if law.states.size <= 20:
-        values = law.state_values if law.state_values.ndim == 1 else None
-        labels = [f"{v:.3g}" for v in values] if values is not None else [str(s) for s in law.states]
-        heat.set_yticks(states, labels)
+    # Ticks always name what a state stands for: the signal value (for a Poisson receptor the
+    # count divided by the gain), never a bare row index; at most about 10 of them.
+    values = law.state_values if law.state_values.ndim == 1 else None
+    shown = np.unique(np.linspace(0, states.size - 1, min(states.size, 10)).round().astype(int))
+    if values is not None:
+        heat.set_ylabel("sensed signal value y")
+        heat.set_yticks(states[shown], [f"{values[k]:.3g}" for k in shown])
+    else:
+        heat.set_ylabel("sensed state")
+        heat.set_yticks(states[shown], [str(law.states[k]) for k in shown])
     heat.set_title(f"probability of {names[index]}")
     fractions = np.einsum("ky,kyx->kx", law.state_probs, law.table)
     for j, name in enumerate(names):

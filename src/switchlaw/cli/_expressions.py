@@ -12,6 +12,9 @@ import operator
 
 import numpy as np
 
+#: The names a payoff expression may use: the sensed state and the population density.
+PAYOFF_VARIABLES = ("y", "density")
+
 FUNCTIONS = {
     "exp": np.exp,
     "log": np.log,
@@ -34,9 +37,6 @@ _UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
 
 
 from .._errors import InputError
-
-#: Names a payoff expression may use: the sensed state and the population density.
-PAYOFF_VARIABLES = ("y", "density")
 
 
 class ExpressionError(InputError):

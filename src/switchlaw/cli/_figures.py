@@ -215,3 +215,44 @@ def variants(base_diagram, items) -> list:
                "unstable; squares transcritical points, circles folds). Look at where the curves separate: "
                "that is the range of β in which the variant's change matters.")
     return [("variants", fig, caption)]
+
+
+def calibration(fit: dict) -> list:
+    """The fit against the observed fractions and the profile likelihoods (drawn by the helper)."""
+    drawn = fit["figures"]
+    captions = {
+        "calibration_fit": "Observed fraction of each phenotype (points) against the fitted law (line) "
+                           "with its 95% band: look for points far outside the band.",
+        "calibration_profiles": "Profile log-likelihood of each fitted parameter; the horizontal line is "
+                                "the 95% cut-off (chi-square(1) 0.95 quantile / 2 = 1.92 below the "
+                                "maximum), where it crosses are the interval's ends. A flat profile "
+                                "means the data do not pin the parameter down.",
+    }
+    return [(name, drawn[name], captions[name]) for name in ("calibration_fit", "calibration_profiles")
+            if name in drawn]
+
+
+def front(entry: dict) -> list:
+    """Profiles and position of the first run; speed against beta when the section scanned."""
+    import switchlaw as sl
+
+    plt = _plt()
+    found = entry["study"]
+    run = found.runs[0]
+    made = []
+    fig, axes = plt.subplots(1, len(run.phenotypes), figsize=(4.2 * len(run.phenotypes), 3.6),
+                             constrained_layout=True, squeeze=False)
+    sl.plot_front_profiles(run, axes=axes[0])
+    made.append(("front_profiles", fig, f"Density of each phenotype along the domain at several times "
+                 f"(β = {run.beta:.3g}): a front keeps its shape while it moves; look at which phenotype "
+                 "leads at the edge."))
+    fig, ax = plt.subplots(figsize=(5.5, 3.8), constrained_layout=True)
+    sl.plot_front_position(run, ax=ax)
+    made.append(("front_position", fig, "Front position against time; the speed is the slope over the "
+                 "fitted window, beside the linear-speed line c*. A straight line means a steady front."))
+    if found.scan is not None:
+        fig, ax = plt.subplots(figsize=(5.5, 3.8), constrained_layout=True)
+        sl.plot_front_speeds(found.scan, ax=ax)
+        made.append(("front_speeds", fig, "Front speed against β with the linear speed c* and each point's "
+                     "kind: pulled fronts sit on c*, pushed fronts above it."))
+    return made

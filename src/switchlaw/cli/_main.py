@@ -15,6 +15,7 @@ DEMOS = {
     "colony": "A colony on a hexagonal lattice: divide or roam by occupied neighbours (invented).",
     "dormancy": "Microbes choosing growth or dormancy under a noisy stress cue (invented).",
     "pulsed": "Cells growing or tolerating a stress that comes in pulses, on schedules (invented).",
+    "calibrated": "Fit beta and two payoff parameters to invented counts, then run at the fit (invented).",
 }
 
 
@@ -58,8 +59,9 @@ def _parser() -> argparse.ArgumentParser:
         sub.add_argument("--scheduler", default=None,
                          help="Dask scheduler address (tcp://host:port) or scheduler file for the beta scan")
         sub.add_argument("--only", default=None, metavar="STAGE[,STAGE]",
-                         help="run only these stages (law always runs): law, population, regime_map, "
-                         "extinction, lattice, fluctuating, schedule, sensitivity, variants")
+                         help="run only these stages (law always runs, after calibration if the study has one): "
+                         "calibration, law, population, regime_map, extinction, lattice, front, fluctuating, "
+                         "schedule, sensitivity, variants")
         sub.add_argument("--skip", default=None, metavar="STAGE[,STAGE]", help="skip these stages")
     compare = commands.add_parser("compare", help="a side-by-side report of two finished runs")
     compare.add_argument("first", help="output folder of one run")
@@ -86,7 +88,12 @@ def _demo_text(name: str) -> str:
     return resources.files("switchlaw.cli").joinpath("studies", f"{name}.toml").read_text(encoding="utf-8")
 
 
-def _run(text: str, source: str, args) -> int:
+def demo_dir() -> Path:
+    """The folder of the built-in studies (their data files are read from it)."""
+    return Path(str(resources.files("switchlaw.cli").joinpath("studies")))
+
+
+def _run(text: str, source: str, args, base_dir=None) -> int:
     from .._errors import InputError
     from ._outputs import OutputExists, OutputFolder, check_target
     from ._study import StudyError, load_text
@@ -100,7 +107,7 @@ def _run(text: str, source: str, args) -> int:
     except OutputExists as error:
         return _fail(str(error))
     try:
-        study = load_text(text, source, seed=args.seed)
+        study = load_text(text, source, seed=args.seed, base_dir=base_dir)
     except StudyError as error:
         for line in error.lines:
             print(line, file=sys.stderr)
@@ -120,7 +127,7 @@ def _run(text: str, source: str, args) -> int:
     try:
         with OutputFolder(args.out, force=args.force, into_existing=args.into_existing) as folder:
             results = run(study, text, quiet=args.quiet, jobs=args.jobs, scheduler=args.scheduler,
-                          stages=stages)
+                          stages=stages, base_dir=base_dir)
             written = write_outputs(results, folder.work)
             folder.commit()
             out = folder.target
@@ -162,13 +169,13 @@ def main(argv=None) -> int:
         except StudyError as error:
             print(error.lines[0], file=sys.stderr)
             return 2
-        return _run(text, args.study, args)
+        return _run(text, args.study, args, base_dir=Path(args.study).resolve().parent)
     if args.command == "demo":
         try:
             text = _demo_text(args.name)
         except KeyError:
             return _fail(f"unknown demo {args.name!r} (valid: {', '.join(DEMOS)})")
-        return _run(text, f"demo:{args.name}", args)
+        return _run(text, f"demo:{args.name}", args, base_dir=demo_dir())
     if args.command == "compare":
         from ._compare import compare
 

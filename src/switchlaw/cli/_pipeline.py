@@ -56,6 +56,7 @@ class Results:
     scan: object = None
     regime_map: object = None
     timings: dict = field(default_factory=dict)
+    base_dir: Path | None = None
     stages: set = field(default_factory=set)
     extras: dict = field(default_factory=dict)
     variants: list = field(default_factory=list)
@@ -71,23 +72,29 @@ def _route(study: Study) -> dict:
 
 
 def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None,
-        scheduler: str | None = None, stages: set | None = None) -> Results:
+        scheduler: str | None = None, stages: set | None = None, base_dir=None) -> Results:
     """Compute everything the study asks for (no files written here).
 
     ``jobs`` (local processes) or ``scheduler`` (a Dask scheduler address or file) spread the
     scan over beta; results are identical whatever runs them. ``stages`` (from
     :func:`._stages.select`) limits the run to some stages; by default every stage the
-    study has runs.
+    study has runs. ``base_dir`` is the folder relative paths of the study (data files) are
+    read from (the study file's folder; the current folder when None).
     """
     import switchlaw as sl
 
     from . import _stages
 
     chosen = _stages.select(study) if stages is None else set(stages)
-    extra = [s for s in _stages.STAGES[3:] if s in chosen]
+    extra = [s for s in chosen if s not in ("law", "population", "regime_map")]
     count = 2 + (2 if study.population and "population" in chosen else 0) + (
         1 if study.regime_map and "regime_map" in chosen else 0) + len(extra)
     progress = Progress(count, quiet)
+    fit = None
+    if study.calibration is not None and "calibration" in chosen:
+        progress.stage("calibration: fitting beta and the payoff parameters to the data")
+        fit = _stages.run_calibration(study, base_dir)
+        study = _stages.fitted_study(study, fit)  # every later stage runs at the estimates
     payoff = payoff_functions(study)
     environment = environment_function(study)
     names = study.study.phenotypes
@@ -108,7 +115,10 @@ def run(study: Study, text: str, *, quiet: bool = False, jobs: int | None = None
         centre = float(np.nanmedian(law.betas[np.isfinite(law.betas)])) if np.isfinite(law.betas).any() else 1.0
         betas = np.linspace(0.0, 4.0 * max(centre, 1e-3), 81)
     curve = sl.tradeoff(table, env, betas, objective=study.decision.objective)
-    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho, stages=chosen)
+    results = Results(study=study, text=text, law=law, curve=curve, reference_density=rho, stages=chosen,
+                      base_dir=None if base_dir is None else Path(base_dir))
+    if fit is not None:
+        results.extras["calibration"] = fit
     if study.population is None:
         _run_extras(results, payoff, environment, progress, jobs=jobs, scheduler=scheduler, quiet=quiet)
         return results
@@ -166,6 +176,9 @@ def _run_extras(results, payoff, environment, progress, *, jobs, scheduler, quie
     if "lattice" in chosen:
         progress.stage("lattice agents with the law")
         extras["lattice"] = _stages.run_lattice(study, payoff, environment)
+    if "front" in chosen:
+        progress.stage("travelling fronts with diffusing phenotypes")
+        extras["front"] = _stages.run_front(study, results.model)
     if "fluctuating" in chosen:
         progress.stage("long-run growth in the fluctuating environment")
         extras["fluctuating"] = _stages.run_fluctuating(study)
@@ -181,7 +194,7 @@ def _run_extras(results, payoff, environment, progress, *, jobs, scheduler, quie
             progress.stage(f"variant {name!r}: every stage")
             inner = (chosen - {"variants"}) & _stages.select(variant)
             results.variants.append((name, run(variant, results.text, quiet=True, jobs=jobs,
-                                               scheduler=scheduler, stages=inner)))
+                                               scheduler=scheduler, stages=inner, base_dir=results.base_dir)))
 
 
 def _finite(value):
@@ -220,6 +233,34 @@ def _scan_rows(dataset) -> list[dict]:
             "positive_equilibria": int(dataset["positive_equilibria"].values[i]),
         })
     return rows
+
+
+def units(time_unit: str | None = None, route: str = "beta") -> dict:
+    """The unit of every number of summary.json's core keys, by dotted key path.
+
+    Each optional section's key carries its own ``units`` (or ``unit``) beside its values; the
+    verdict quotes each number with its unit. Rates are per the study's time unit.
+    """
+    from ._stages import BETA_UNIT, DENSITY_UNIT
+
+    per_time = f"per {time_unit}" if time_unit else "per time unit"
+    return {
+        "law.betas": BETA_UNIT, "law.densities": DENSITY_UNIT, "law.information_bits": "bits",
+        "law.expected_payoff": "payoff units",
+        "law.setting": {"beta": BETA_UNIT, "cost_per_bit": "payoff units per bit", "bits": "bits"}[route],
+        "tradeoff.reference_density": DENSITY_UNIT, "tradeoff.critical_betas.beta": BETA_UNIT,
+        "at_study_beta.beta": BETA_UNIT, "at_study_beta.allee_threshold": DENSITY_UNIT,
+        "population.regimes.beta": BETA_UNIT, "population.regimes.low_density_growth": per_time,
+        "population.regimes.largest_stable_density": DENSITY_UNIT,
+        "population.regimes.allee_threshold": DENSITY_UNIT,
+        "population.critical_betas.beta": BETA_UNIT, "population.critical_betas.density": DENSITY_UNIT,
+        "regime_map.betas": BETA_UNIT, "regime_map.values": "scale factor (dimensionless)",
+        "sensitivity.beta": BETA_UNIT,
+        "sensitivity.equilibria.derivatives": "fraction of sites per unit of the parameter",
+        "sensitivity.critical_betas.derivatives": "nats per payoff unit per unit of the parameter",
+        "sensitivity.sobol": "dimensionless (share of variance)",
+        "time": time_unit or "time units",
+    }
 
 
 def summary(results: Results) -> dict:
@@ -278,6 +319,7 @@ def summary(results: Results) -> dict:
                            for name, inner in results.variants]
     out["verdict"] = _stages.verdict(out, law.phenotypes)
     out["stages"] = [s for s in _stages.STAGES if s in results.stages]
+    out["units"] = units(results.study.study.time_unit, law.route)
     if results.regime_map is not None:
         rm = results.regime_map
         out["regime_map"] = {
@@ -391,10 +433,14 @@ def _extra_figures(results: Results, save, saved: list) -> dict:
 
     extras, made = results.extras, []
     names = list(results.law.phenotypes)
+    if "calibration" in extras:
+        made += _figures.calibration(extras["calibration"])
     if "extinction" in extras:
         made += _figures.extinction(extras["extinction"])
     if "lattice" in extras:
         made += _figures.lattice(extras["lattice"])
+    if "front" in extras:
+        made += _figures.front(extras["front"])
     if "fluctuating" in extras:
         made += _figures.fluctuating(extras["fluctuating"])
     if "schedule" in extras:

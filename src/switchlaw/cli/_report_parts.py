@@ -51,6 +51,12 @@ def _figure(figures: dict, name: str, alt: str) -> dict:
 def key_numbers(verdict: dict) -> list[dict]:
     """The verdict's numbers as rows (name, value, unit, section)."""
     rows = []
+    if "fitted_beta" in verdict:
+        f = verdict["fitted_beta"]
+        low, high = f["interval_95"]
+        rows.append({"name": "fitted β (95% profile interval)",
+                     "value": f"{_g(f['value'])} [{_g(low)}, {_g(high)}]", "unit": BETA_UNIT,
+                     "section": "calibration"})
     if "beta" in verdict:
         rows.append({"name": "study's β", "value": _g(verdict["beta"]["value"]), "unit": BETA_UNIT,
                      "section": "population"})
@@ -66,6 +72,10 @@ def key_numbers(verdict: dict) -> list[dict]:
                      "unit": "probability", "section": "extinction"})
         rows.append({"name": "founders for a risk of one half", "value": _g(e["half_at_founders"]),
                      "unit": "cells", "section": "extinction"})
+    if "front" in verdict:
+        f = verdict["front"]
+        rows.append({"name": f"front speed at β = {_g(f['beta'])} ({f['kind']})", "value": _g(f["speed"]),
+                     "unit": f["unit"], "section": "front"})
     if "lattice_final_density" in verdict:
         rows.append({"name": "lattice final density", "value": _g(verdict["lattice_final_density"]["value"]),
                      "unit": DENSITY_UNIT, "section": "lattice"})
@@ -111,6 +121,35 @@ VARIANT_HEADER = ["variant", f"β ({BETA_UNIT})", "regime", f"Allee threshold ({
 def sections_html(results, data: dict, figures: dict) -> str:
     """The optional stages' sections (HTML, escaped); ``figures`` maps name -> (png path, caption)."""
     sections = []
+    if "calibration" in data:
+        cal = data["calibration"]
+        rows = [[name, _g(value), _g(cal["intervals_95"][name][0]), _g(cal["intervals_95"][name][1]),
+                 cal["units"][name], "yes" if cal["identifiable"][name] else "NO (flat profile)"]
+                for name, value in cal["estimates"].items()]
+        tables = [{"caption": "Estimates with 95% profile-likelihood intervals (– where the profile does "
+                              "not cross the cut-off inside the bounds)",
+                   "header": ["parameter", "estimate", "low", "high", "unit", "identifiable"], "rows": rows},
+                  {"caption": "Fit", "header": ["quantity", "value", "unit"], "rows": [
+                      ["cells", cal["cells"], "cells"], ["log-likelihood", _g(cal["log_likelihood"], 6), "nats"],
+                      ["AIC", _g(cal["aic"], 6), "nats"],
+                      ["deviance against the saturated model", _g(cal["deviance"]), f"on {cal['deviance_df']} df"],
+                      ["p-value of the deviance", _g(cal["deviance_p_value"], 3), "probability"]]}]
+        paragraphs = [f"The study's payoff and beta were fitted to {cal['data']} ({cal['objective']} law, "
+                      f"maximum likelihood; status {cal['status']}: {cal['message']}). Every later stage runs "
+                      "at the estimates.", cal["verdict"]]
+        pop = cal["population"]
+        if pop is not None:
+            paragraphs.append(pop["sentence"])
+            tables.append({"caption": f"Regime across the fitted interval (β in {BETA_UNIT})",
+                           "header": ["β", "regime"],
+                           "rows": [[_g(b), r] for b, r in zip(pop["betas"], pop["regimes"])]})
+        sections.append({
+            "id": "calibration", "title": "Fit to the data",
+            "paragraphs": paragraphs,
+            "figures": [_figure(figures, name, name.replace("_", " ")) for name in
+                        ("calibration_fit", "calibration_profiles") if name in figures],
+            "tables": tables, "caution": None,
+        })
     if "extinction" in data:
         ext = data["extinction"]
         header = ["founders"]
@@ -157,6 +196,37 @@ def sections_html(results, data: dict, figures: dict) -> str:
                         "header": ["time (time units)", "P(neighbour occupied | occupied) / density"],
                         "rows": [[_g(c["time"]), _g(c["neighbour_pair_correlation"])] for c in lat["clustering"]]}],
             "caution": None,
+        })
+    if "front" in data:
+        fr = data["front"]
+        names = list(results.law.phenotypes)
+
+        def shares(table):
+            return ", ".join(f"{n} {_g(table.get(n), 3)}" for n in names)
+
+        rows = [[_g(r["beta"]), r["kind"], _g(r["speed"]), _g(r["linear_speed"]), _g(r["decay_rate"]),
+                 _g(r["width"]), shares(r["edge_fractions"]), shares(r["bulk_fractions"]),
+                 f"{r['status']}: {r['message']}", r["note"] or "–"] for r in fr["runs"]]
+        tables = [{"caption": "Front runs", "header": [
+            f"β ({BETA_UNIT})", "kind", "speed (length per time unit)", "c* (length per time unit)",
+            "λ* (per length unit)", "width (length units)", "edge fractions", "bulk fractions",
+            "status", "note"], "rows": rows}]
+        if "scan" in fr:
+            sc = fr["scan"]
+            tables.append({"caption": "Speed against β", "header": [
+                f"β ({BETA_UNIT})", "speed (length per time unit)", "c* (length per time unit)", "kind", "status"],
+                "rows": [[_g(b), _g(v), _g(c), k, st] for b, v, c, k, st in
+                         zip(sc["beta"], sc["speed"], sc["linear_speed"], sc["kind"], sc["status"])]})
+        front = results.study.front
+        sections.append({
+            "id": "front", "title": "Travelling fronts",
+            "paragraphs": [f"The mean-field model with each phenotype diffusing ({', '.join(f'{n}: {_g(front.diffusion[n])}' for n in names)} "
+                           f"length² per time unit) on a domain of {_g(front.length)} length units (grid {_g(front.dx)}, "
+                           f"dimension {front.dimension}) up to t = {_g(front.t_end)}. c* is the linear spreading speed "
+                           "and λ* its decay rate; a pulled front moves at c*, a pushed one faster."],
+            "figures": [_figure(figures, name, name.replace("_", " ")) for name in
+                        ("front_profiles", "front_position", "front_speeds") if name in figures],
+            "tables": tables, "caution": None,
         })
     if "fluctuating" in data:
         flu = data["fluctuating"]

@@ -109,6 +109,140 @@ class Sensitivity(_Strict):
     beta: float | None = Field(default=None, ge=0)
 
 
+class Calibration(_Strict):
+    """Fit beta and payoff parameters to observed phenotype counts before every other stage."""
+
+    data: str = Field(min_length=1, max_length=4096,
+                      description="tidy CSV (columns phenotype, count, state or signal, density), relative to the study file")
+    free: dict[str, list[float]] = Field(min_length=1, max_length=16,
+                                         description="parameter -> [low, high] bounds (beta in nats per payoff unit)")
+    fixed: dict[str, float] = Field(default_factory=dict, max_length=16, description="parameters held at a value")
+    objective: Literal["min-information", "max-entropy"] | None = Field(
+        default=None, description="default: the [decision] objective")
+    starts: int = Field(default=4, ge=1, le=64, description="optimiser starts (Latin hypercube)")
+    seed: int | None = Field(default=None, ge=0, le=2**63 - 1, description="default: the study's seed")
+    bootstrap: int = Field(default=0, ge=0, le=2_000, description="parametric bootstrap refits (0: none)")
+    population: bool = Field(default=True, description="carry the fitted interval to the population regimes")
+
+
+#: Grid cells of a front run (length / dx) and betas of its speed scan: each scan point is a run.
+MAX_FRONT_CELLS = 20_000
+MAX_FRONT_SCAN = 200
+
+
+class FrontScanSpec(_Strict):
+    """Betas of a front-speed scan (each point is one front run)."""
+
+    start: float = Field(ge=0)
+    stop: float
+    points: int = Field(ge=2, le=MAX_FRONT_SCAN)
+
+
+class Front(_Strict):
+    """Travelling fronts of the mean-field model with diffusing phenotypes (needs [population])."""
+
+    diffusion: dict[str, float] = Field(description="phenotype -> diffusion coefficient (length^2 per unit time)")
+    length: float = Field(gt=0, le=1e6, description="domain length (length units)")
+    dx: float = Field(gt=0, description="grid spacing (length units)")
+    t_end: float = Field(gt=0, le=1e6, description="run time (time units)")
+    dimension: Literal[1, 2, 3] = Field(default=1, description="1: a line; 2, 3: radial front in a disc or ball")
+    betas: list[float] | None = Field(default=None, min_length=1, max_length=8,
+                                      description="betas of the full runs (default: the study's)")
+    frames: int = Field(default=201, ge=2, le=2_001, description="stored times per run")
+    scan: FrontScanSpec | None = None
+
+
+def front_problems(study, names) -> list:
+    """Rules of [front] that span keys."""
+    front = study.front
+    problems = []
+    if study.population is None:
+        problems.append(("front", "needs a [population] section", None))
+    for key, value in front.diffusion.items():
+        if key not in names:
+            problems.append((f"front.diffusion.{key}", f"unknown phenotype (phenotypes are {names})", value))
+        elif not (math.isfinite(value) and 0 <= value <= 1e12):
+            problems.append((f"front.diffusion.{key}", "diffusion coefficients must be finite and >= 0", value))
+    for key in names:
+        if key not in front.diffusion:
+            problems.append((f"front.diffusion.{key}", "missing diffusion coefficient for a phenotype (0 for none)", None))
+    if front.diffusion and not any(v > 0 for v in front.diffusion.values()):
+        problems.append(("front.diffusion", "at least one phenotype must diffuse (a positive coefficient)", None))
+    if not math.isfinite(front.dx) or front.dx >= front.length:
+        problems.append(("front.dx", "the grid spacing must be finite and below front.length", front.dx))
+    elif front.length / front.dx > MAX_FRONT_CELLS:
+        problems.append(("front.dx", f"at most {MAX_FRONT_CELLS} grid cells (length / dx = "
+                         f"{front.length / front.dx:.0f}): a larger dx or a shorter length", front.dx))
+    for i, beta in enumerate(front.betas or ()):
+        if not (math.isfinite(beta) and 0 <= beta <= 1e12):
+            problems.append((f"front.betas[{i}]", "betas must be finite and >= 0", beta))
+    if front.scan is not None and not (front.scan.start < front.scan.stop <= 1e12):
+        problems.append(("front.scan", "betas must satisfy 0 <= start < stop", [front.scan.start, front.scan.stop]))
+    problems += _needs_beta(study, front.betas, "front.betas")
+    return problems
+
+
+#: Names a [calibration] section fits besides payoff parameters.
+FIT_ROUTES = ("beta",)
+
+
+def payoff_parameters(study) -> dict:
+    """Payoff parameters a [calibration] section names -> the value ``check`` tries them at.
+
+    Free parameters are tried at the middle of their bounds, fixed ones at their value; the
+    run replaces them by the fitted values (:func:`fitted_study`).
+    """
+    cal = getattr(study, "calibration", None)
+    if cal is None:
+        return {}
+    out = {name: 0.5 * (pair[0] + pair[1]) for name, pair in cal.free.items()
+           if name not in FIT_ROUTES and len(pair) == 2}
+    out.update({name: float(v) for name, v in cal.fixed.items() if name not in FIT_ROUTES})
+    return out
+
+
+def calibration_problems(study, names) -> list:
+    """Rules of [calibration] that span keys (bounds, names, which payoffs use which names)."""
+    import re
+
+    from . import _expressions
+
+    cal = study.calibration
+    problems = []
+    reserved = set(_expressions.PAYOFF_VARIABLES) | set(_expressions.FUNCTIONS)
+    for table in ("free", "fixed"):
+        for name, value in getattr(cal, table).items():
+            key = f"calibration.{table}.{name}"
+            if not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]{0,63}", name) or name in reserved or name == "cost_per_bit":
+                problems.append((key, "a parameter name is a letter or _ then letters, digits or _, not y, "
+                                 "density or a function name", name))
+                continue
+            pairs = [value] if table == "fixed" else value
+            if table == "free" and len(value) != 2:
+                problems.append((key, "bounds are [low, high]", value))
+                continue
+            if not all(math.isfinite(v) and abs(v) <= 1e12 for v in pairs):
+                problems.append((key, "must be finite with magnitude at most 1e+12", value))
+            elif table == "free" and not value[0] < value[1]:
+                problems.append((key, "bounds must satisfy low < high", value))
+            elif name == "beta" and min(pairs) < 0:
+                problems.append((key, "beta is >= 0", value))
+    both = set(cal.free) & set(cal.fixed)
+    if both:
+        problems.append((f"calibration.fixed.{sorted(both)[0]}", "a parameter is either free or fixed", None))
+    if "beta" not in cal.free and "beta" not in cal.fixed:
+        problems.append(("calibration.free", "fit beta (free.beta = [low, high]) or hold it (fixed.beta)", None))
+    used = set()
+    for text in study.payoff.values():
+        if isinstance(text, str):
+            used |= set(re.findall(r"(?<![\w.])([A-Za-z_]\w*)", text))
+    for table in ("free", "fixed"):
+        for name in getattr(cal, table):
+            if name not in FIT_ROUTES and name not in used:
+                problems.append((f"calibration.{table}.{name}", "no payoff expression names this parameter", name))
+    return problems
+
+
 #: Parameters a Sobol' range may name (scales of the model and the sensitivity).
 SOBOL_PARAMETERS = ("beta", "death_scale", "division_scale")
 #: Study sections a variant may not override.
@@ -143,6 +277,10 @@ def semantic(study) -> list[tuple[str, str, object]]:
     """Rules of the new sections that span several keys."""
     problems = []
     names = list(study.study.phenotypes)
+    if getattr(study, "calibration", None) is not None:
+        problems += calibration_problems(study, names)
+    if getattr(study, "front", None) is not None:
+        problems += front_problems(study, names)
     ext = study.extinction
     if ext is not None:
         if study.population is None:

@@ -12,12 +12,14 @@ import math
 
 import numpy as np
 
+from ._caution import CAUTION  # noqa: F401  (one caution text for every output)
+
 #: Stages a run can be limited to (``--only``) or spared (``--skip``), in the order they run.
-STAGES = ("law", "population", "regime_map", "extinction", "lattice", "fluctuating", "schedule",
-          "sensitivity", "variants")
+STAGES = ("calibration", "law", "population", "regime_map", "extinction", "lattice", "front", "fluctuating",
+          "schedule", "sensitivity", "variants")
 #: The study section each optional stage needs.
-SECTION = {"population": "population", "regime_map": "regime_map", "extinction": "extinction",
-           "lattice": "lattice", "fluctuating": "fluctuating", "schedule": "schedule",
+SECTION = {"calibration": "calibration", "population": "population", "regime_map": "regime_map", "extinction": "extinction",
+           "lattice": "lattice", "front": "front", "fluctuating": "fluctuating", "schedule": "schedule",
            "sensitivity": "sensitivity", "variants": "variant"}
 
 BETA_UNIT = "nats per payoff unit"
@@ -47,8 +49,21 @@ def select(study, only=None, skip=None) -> set:
     for name in wanted:
         if name not in present:
             raise StageError(f"--only: the study has no [{SECTION[name]}] section for stage {name!r}")
+    if "calibration" in spared and calibration_required(study):
+        raise StageError("--skip: the calibration stage cannot be skipped: the payoff names the parameters "
+                         "it fits")
     chosen = set(wanted) | {"law"} if only is not None else set(present)
+    if "calibration" in present and "calibration" not in spared:
+        chosen.add("calibration")  # the fit comes first: every later stage runs at its estimates
     return chosen - set(spared)
+
+
+def calibration_required(study) -> bool:
+    """Whether the study's payoff names parameters only a fit gives values to."""
+    from ._sections import FIT_ROUTES
+
+    cal = getattr(study, "calibration", None)
+    return cal is not None and any(name not in FIT_ROUTES for name in cal.free)
 
 
 def own_beta(study, value=None) -> float | None:
@@ -82,6 +97,58 @@ def _rates(study, table):
 
 
 # ----------------------------------------------------------------------------- stages
+def run_calibration(study, base_dir) -> dict:
+    """Fit the [calibration] section (:func:`switchlaw.calibration.run_calibration_section`)."""
+    from pathlib import Path
+
+    from switchlaw.calibration import run_calibration_section
+
+    from ._sections import FIT_ROUTES
+    from ._study import environment_function, payoff_functions
+
+    cal = study.calibration
+    defaults = {k: v for k, v in cal.fixed.items() if k not in FIT_ROUTES}
+
+    def payoff(**params):
+        return payoff_functions(study, {**defaults, **{k: float(v) for k, v in params.items()}})
+
+    section = {"data": cal.data, "free": {k: list(v) for k, v in cal.free.items()}, "fixed": dict(cal.fixed),
+               "objective": cal.objective or study.decision.objective, "starts": cal.starts,
+               "seed": study.study.seed if cal.seed is None else cal.seed, "bootstrap": cal.bootstrap,
+               "population": cal.population and study.population is not None}
+    pop = study.population
+    out = run_calibration_section(
+        section, payoff=payoff, environment=environment_function(study), phenotypes=study.study.phenotypes,
+        base_dir=Path(".") if base_dir is None else Path(base_dir),
+        division=None if pop is None else _rates(study, "division"),
+        death=None if pop is None else _rates(study, "death"), tau=None if pop is None else pop.tau)
+    out["data"] = cal.data
+    return out
+
+
+def fitted_study(study, fit: dict):
+    """The study with the fitted beta and payoff parameters written in (no [calibration] left)."""
+    import re
+
+    from ._sections import FIT_ROUTES
+    from ._study import Study
+
+    result = fit["calibration"]
+    values = {**{k: float(v) for k, v in study.calibration.fixed.items()},
+              **{k: float(v) for k, v in result.estimates.items()}}
+    data = study.model_dump()
+    for name, spec in data["payoff"].items():
+        if isinstance(spec, str):
+            for param, value in values.items():
+                if param not in FIT_ROUTES:
+                    spec = re.sub(rf"(?<![\w.]){re.escape(param)}(?!\w)", f"({value!r})", spec)
+            data["payoff"][name] = spec
+    data["decision"].update(beta=values["beta"], cost_per_bit=None, bits=None,
+                            objective=result.objective)
+    data["calibration"] = None
+    return Study.model_validate(data)
+
+
 def run_extinction(study, model, payoff, environment) -> dict:
     """Exact chain risk at the study's beta and the chosen betas; simulated curves if asked."""
     import switchlaw as sl
@@ -128,6 +195,27 @@ def run_lattice(study, payoff, environment) -> dict:
     clustering = [neighbour_clustering(lattice, run.snapshots[k]) for k in range(shots.size)]
     return {"beta": beta, "lattice": lattice, "run": run, "comparison": comparison,
             "clustering": clustering, "snapshot_times": shots}
+
+
+LENGTH_UNIT = "length units"
+SPEED_UNIT = "length units per time unit"
+
+
+def run_front(study, model) -> dict:
+    """Front runs at the section's betas (default: the study's) and the speed scan, if asked."""
+    import switchlaw as sl
+
+    front = study.front
+    betas = [float(b) for b in front.betas] if front.betas else [own_beta(study)]
+    from .._errors import InputError
+
+    try:
+        found = sl.front_study(model, diffusion=dict(front.diffusion), length=front.length, dx=front.dx,
+                               t_end=front.t_end, dimension=front.dimension, betas=betas, frames=front.frames,
+                               scan=None if front.scan is None else front.scan.model_dump())
+    except InputError as error:
+        raise InputError(f"front: {str(error).replace('`front.', '`')}") from None
+    return {"study": found}
 
 
 def fluctuating_inputs(study):
@@ -284,9 +372,42 @@ def _nums(values):
     return [_num(v) for v in np.asarray(values, dtype=float).ravel()]
 
 
+def _pair(pair):
+    return [_num(pair[0]), _num(pair[1])]
+
+
+def calibration_summary(fit: dict) -> dict:
+    """The ``"calibration"`` key of summary.json (null where a profile does not cross its cut-off)."""
+    result, pop = fit["calibration"], fit["population"]
+    units = {name: (BETA_UNIT if name == "beta" else "payoff units") for name in result.estimates}
+    out = {
+        "data": fit["data"], "objective": result.objective, "cells": int(result.cells),
+        "status": result.status, "message": result.message, "converged": bool(result.converged),
+        "estimates": {k: _num(v) for k, v in result.estimates.items()},
+        "intervals_95": {k: _pair(v) for k, v in result.intervals.items()},
+        "identifiable": {k: bool(v) for k, v in result.identifiable.items()},
+        "log_likelihood": _num(result.log_likelihood), "aic": _num(result.aic), "bic": _num(result.bic),
+        "deviance": _num(result.deviance), "deviance_df": int(result.deviance_df),
+        "deviance_p_value": _num(result.deviance_p_value), "verdict": result.verdict,
+        "units": {**units, "log_likelihood": "nats", "aic": "nats (2 k - 2 log L)",
+                  "deviance": "nats (twice the log-likelihood gap to the saturated model)"},
+        "population": None,
+    }
+    if pop is not None:
+        out["population"] = {
+            "beta": _num(pop.beta), "beta_interval": _pair(pop.beta_interval), "regime": pop.regime,
+            "betas": _nums(pop.betas), "regimes": [str(r) for r in pop.regimes],
+            "critical_betas": [{"beta": _num(c.beta), "kind": c.kind} for c in pop.critical_betas],
+            "sentence": pop.sentence, "beta_unit": BETA_UNIT,
+        }
+    return out
+
+
 def summaries(extras: dict, names) -> dict:
     """The summary.json keys of the stages that ran."""
     out = {}
+    if "calibration" in extras:
+        out["calibration"] = calibration_summary(extras["calibration"])
     if "extinction" in extras:
         ext = extras["extinction"]
         curves = []
@@ -306,6 +427,11 @@ def summaries(extras: dict, names) -> dict:
         out["extinction"] = {"sites": ext["sites"], "established": ext["established"],
                              "founders": ext["founders"], "unit": "probability of dying out before establishing",
                              "curves": curves}
+    if "front" in extras:
+        out["front"] = {**extras["front"]["study"].summary(), "units": {
+            "beta": BETA_UNIT, "speed": SPEED_UNIT, "linear_speed": SPEED_UNIT, "decay_rate": "per length unit",
+            "width": LENGTH_UNIT, "edge_fractions": "fraction of cells", "bulk_fractions": "fraction of cells",
+            "bulk_density": DENSITY_UNIT}}
     if "lattice" in extras:
         lat = extras["lattice"]
         cmp_ = lat["comparison"]
@@ -388,12 +514,23 @@ def verdict(data: dict, names) -> dict:
     def say(text, anchor):
         sentences.append({"text": text, "section": anchor})
 
+    cal = data.get("calibration")
+    if cal is not None and "beta" in cal["estimates"]:
+        low, high = cal["intervals_95"]["beta"]
+        fields["fitted_beta"] = {"value": cal["estimates"]["beta"], "interval_95": [low, high],
+                                 "unit": BETA_UNIT, "identifiable": cal["identifiable"]["beta"]}
+        ends = f"[{'–' if low is None else _fmt(low)}, {'–' if high is None else _fmt(high)}]"
+        say(f"Fitted to the data: β = {_fmt(cal['estimates']['beta'])} {BETA_UNIT} (95% profile interval "
+            f"{ends}); every later stage runs at the estimates. {cal['verdict']}", "calibration")
+        if cal["population"] is not None:
+            say(cal["population"]["sentence"], "calibration")
     at = data.get("at_study_beta")
     if at is not None:
         beta = at["beta"]
         fields["beta"] = {"value": beta, "unit": BETA_UNIT}
         fields["regime"] = at["regime"]
-        say(f"At the study's β = {_fmt(beta)} {BETA_UNIT}, the population is in the {at['regime']} regime.",
+        whose = "fitted" if cal is not None else "study's"
+        say(f"At the {whose} β = {_fmt(beta)} {BETA_UNIT}, the population is in the {at['regime']} regime.",
             "population")
         threshold = at["allee_threshold"]
         fields["allee_threshold"] = {"value": threshold if isinstance(threshold, float) else None,
@@ -430,6 +567,15 @@ def verdict(data: dict, names) -> dict:
                                            "mean_field": lat["mean_field_final_density"]}
         say(f"On the lattice the density ends at {_fmt(lat['final_density'])} against "
             f"{_fmt(lat['mean_field_final_density'])} in mean field ({DENSITY_UNIT}).", "lattice")
+    front = data.get("front")
+    if front is not None and front["runs"]:
+        run = front["runs"][0]
+        fields["front"] = {"beta": run["beta"], "speed": run["speed"], "linear_speed": run["linear_speed"],
+                           "kind": run["kind"], "unit": SPEED_UNIT, "status": run["status"]}
+        speed = "no measured speed" if run["speed"] is None else f"speed {_fmt(run['speed'])} {SPEED_UNIT}"
+        linear = "" if run["linear_speed"] is None else f" (linear speed c* = {_fmt(run['linear_speed'])})"
+        say(f"At β = {_fmt(run['beta'])} {BETA_UNIT} the front is {run['kind']} with {speed}{linear} "
+            f"(status {run['status']}).", "front")
     flu = data.get("fluctuating")
     if flu is not None:
         fields["long_run_growth"] = {

@@ -14,6 +14,7 @@ from typing import Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
+from .._errors import InputError
 from . import _expressions, _sections
 
 PAYOFF_VARIABLES = _expressions.PAYOFF_VARIABLES
@@ -121,9 +122,11 @@ class Study(_Strict):
     schedule: _sections.Schedule | None = None
     sensitivity: _sections.Sensitivity | None = None
     variant: list[_sections.Variant] | None = None
+    calibration: _sections.Calibration | None = None
+    front: _sections.Front | None = None
 
 
-class StudyError(ValueError):
+class StudyError(InputError):
     """A study file with problems; ``lines`` holds one line per problem."""
 
     def __init__(self, lines: list[str]):
@@ -200,7 +203,7 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
             continue
         if isinstance(text, str):
             try:
-                _expressions.parse(text, PAYOFF_VARIABLES)
+                _expressions.parse(text, PAYOFF_VARIABLES + tuple(_sections.payoff_parameters(study)))
             except _expressions.ExpressionError as error:
                 problems.append((f"payoff.{key}", str(error), text))
     senses = study.senses
@@ -270,7 +273,7 @@ def _semantic(study: Study) -> list[tuple[str, str, object]]:
 TRIAL_DENSITIES = 201
 
 
-def _trial(study: Study) -> list[tuple[str, str, object]]:
+def _trial(study: Study, base_dir=None) -> list[tuple[str, str, object]]:
     """Build the environment and evaluate every payoff on the density grid.
 
     Problems that only show when numbers are computed (a payoff that overflows or divides by
@@ -321,14 +324,15 @@ def _trial(study: Study) -> list[tuple[str, str, object]]:
                 r = int(np.argmax(bad))
                 problems.append((f"senses.parameters.{key}", f"gives {column[r]} at density {rhos[r]:g}: "
                                  f"parameters must be finite with magnitude at most {MAX_MAGNITUDE:g}", spec))
+    params = _sections.payoff_parameters(study)
     for name in study.study.phenotypes:
         spec = study.payoff[name]
         if not isinstance(spec, str):
             continue
         try:
             column = np.broadcast_to(
-                np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES),
-                                                 {"y": values[:, None], "density": rhos[None, :]}),
+                np.asarray(_expressions.evaluate(_expressions.parse(spec, PAYOFF_VARIABLES + tuple(params)),
+                                                 {"y": values[:, None], "density": rhos[None, :], **params}),
                            dtype=float),
                 (values.size, rhos.size),
             )
@@ -344,14 +348,34 @@ def _trial(study: Study) -> list[tuple[str, str, object]]:
                 f"finite with magnitude at most {MAX_MAGNITUDE:g}",
                 spec,
             ))
+    if study.calibration is not None and base_dir is not None and not problems:
+        problems += _calibration_data(study, environment, base_dir)
     return problems
+
+
+def _calibration_data(study: Study, environment, base_dir) -> list[tuple[str, str, object]]:
+    """Read the [calibration] data file as the fit will (counts, names, states), or say why not."""
+    from .._errors import InputError
+    from ..calibration._data import from_table
+
+    path = Path(base_dir) / study.calibration.data
+    if not path.is_file():
+        return [("calibration.data", f"names no readable file ({path})", study.calibration.data)]
+    if path.stat().st_size > 50 * MAX_BYTES:
+        return [("calibration.data", f"too large (more than {50 * MAX_BYTES} bytes)", study.calibration.data)]
+    try:
+        from_table(path, environment_at=lambda rho: environment(0.5 if rho is None else rho),
+                   phenotype_names=list(study.study.phenotypes), densities=None)
+    except (InputError, ValueError, TypeError) as error:
+        return [("calibration.data", str(error).splitlines()[0], study.calibration.data)]
+    return []
 
 
 #: Largest study file read (bytes): a study is a page of TOML, not data.
 MAX_BYTES = 1_000_000
 
 
-def _validated(data: dict, source: str, prefix: str = "") -> Study:
+def _validated(data: dict, source: str, prefix: str = "", base_dir=None) -> Study:
     try:
         study = Study.model_validate(data)
     except RecursionError:
@@ -364,20 +388,21 @@ def _validated(data: dict, source: str, prefix: str = "") -> Study:
         raise StudyError(lines) from None
     problems = _semantic(study)
     if not problems:
-        problems = _trial(study)
+        problems = _trial(study, base_dir)
     if problems:
         raise StudyError([f"{source}: {prefix}{path}: {message} (got {_show(value)})"
                           for path, message, value in problems])
     return study
 
 
-def load_text(text: str, source: str, *, seed: int | None = None) -> Study:
+def load_text(text: str, source: str, *, seed: int | None = None, base_dir=None) -> Study:
     """Parse and validate a study given as TOML text; raise :class:`StudyError`.
 
     This is every rule ``switchlaw run`` applies before computing, so ``switchlaw check``
     and ``run`` always agree. ``seed`` overrides ``[study] seed`` (the ``--seed`` option).
     Each ``[[variant]]`` is validated as the whole study it makes; its problems name the
-    variant (``variant[i].key``).
+    variant (``variant[i].key``). ``base_dir`` is the folder a ``[calibration]`` data file
+    is read from (the study file's folder); without it the data file is not read here.
     """
     if len(text) > MAX_BYTES:
         raise StudyError([f"{source}: (file): too large ({len(text)} characters; at most {MAX_BYTES})"])
@@ -389,9 +414,9 @@ def load_text(text: str, source: str, *, seed: int | None = None) -> Study:
         raise StudyError([f"{source}: (file): not valid TOML (nested too deeply)"]) from None
     if seed is not None and isinstance(data.get("study"), dict):
         data["study"]["seed"] = seed
-    study = _validated(data, source)
+    study = _validated(data, source, base_dir=base_dir)
     for i, variant in enumerate(study.variant or ()):
-        _validated(_sections.variant_data(data, variant), source, prefix=f"variant[{i}].")
+        _validated(_sections.variant_data(data, variant), source, prefix=f"variant[{i}].", base_dir=base_dir)
     return study
 
 
@@ -425,7 +450,7 @@ def read(path) -> str:
 def load(path, *, seed: int | None = None) -> tuple[Study, str]:
     """Read and validate a study file; returns the study and its text."""
     text = read(path)
-    return load_text(text, str(path), seed=seed), text
+    return load_text(text, str(path), seed=seed, base_dir=Path(path).resolve().parent), text
 
 
 def json_schema() -> dict:
@@ -437,13 +462,18 @@ def json_schema() -> dict:
 
 
 # ------------------------------------------------------------------ building the objects
-def payoff_functions(study: Study) -> dict:
-    """Phenotype name -> function of an Environment giving that phenotype's payoff column."""
+def payoff_functions(study: Study, params: dict | None = None) -> dict:
+    """A function of an Environment giving the payoff table ``[state, phenotype]``.
+
+    ``params`` gives values to the payoff parameters a ``[calibration]`` section names
+    (default: the values ``check`` tries, :func:`._sections.payoff_parameters`).
+    """
+    params = {k: np.float64(v) for k, v in (_sections.payoff_parameters(study) if params is None else params).items()}
     columns = {}
     for name in study.study.phenotypes:
         spec = study.payoff[name]
         if isinstance(spec, str):
-            tree = _expressions.parse(spec, PAYOFF_VARIABLES)
+            tree = _expressions.parse(spec, PAYOFF_VARIABLES + tuple(params))
             columns[name] = tree
         else:
             columns[name] = float(spec)
@@ -455,7 +485,7 @@ def payoff_functions(study: Study) -> dict:
         for name in study.study.phenotypes:
             spec = columns[name]
             column = (
-                _expressions.evaluate(spec, {"y": values, "density": density})
+                _expressions.evaluate(spec, {"y": values, "density": density, **params})
                 if not isinstance(spec, float) else spec
             )
             out.append(np.broadcast_to(np.asarray(column, dtype=float), values.shape))
