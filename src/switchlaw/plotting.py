@@ -5,6 +5,16 @@ from __future__ import annotations
 import numpy as np
 
 
+def _axes(ax, *, figsize):
+    """The caller's axes, or new ones of ``figsize`` inches (matplotlib imported here)."""
+    if ax is not None:
+        return ax
+    import matplotlib.pyplot as plt
+
+    _, ax = plt.subplots(figsize=figsize, constrained_layout=True)
+    return ax
+
+
 def plot_law(law, *, phenotype=None, axes=None):
     """The law as a heat map over state x density, and the mean-field fractions against density.
 
@@ -74,10 +84,7 @@ def plot_tradeoff(curve, *, ax=None, phenotypes=None):
     -------
     Axes
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(5, 4), constrained_layout=True)
+    ax = _axes(ax, figsize=(5, 4))
 
     def name(x):
         return str(phenotypes[x]) if phenotypes is not None else str(x)
@@ -108,10 +115,7 @@ def plot_bifurcation(diagram, *, ax=None):
     -------
     Axes
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(6, 4), constrained_layout=True)
+    ax = _axes(ax, figsize=(6, 4))
     lo, hi = diagram.value_range
     label = "β" if diagram.parameter == "beta" else diagram.parameter
     # The zero state changes stability only at transcritical points: draw it in pieces
@@ -243,10 +247,7 @@ def plot_front_position(run, *, ax=None):
     -------
     Axes
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
+    ax = _axes(ax, figsize=(5.5, 4))
     ax.plot(run.times, run.positions, color="k", label="front position")
     ax.axvspan(*run.window, color="0.9", label="fitted window")
     if np.isfinite(run.linear_speed):
@@ -278,10 +279,7 @@ def plot_front_speeds(scan, *, ax=None):
     -------
     Axes
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(5.5, 4), constrained_layout=True)
+    ax = _axes(ax, figsize=(5.5, 4))
     if hasattr(scan, "linear_speeds"):  # FrontScan
         betas, speeds, linear, kinds = scan.betas, scan.speeds, scan.linear_speeds, list(scan.kinds)
     elif hasattr(scan, "data_vars"):
@@ -325,10 +323,7 @@ def plot_calibration(calibration, *, ax=None):
     calibration's ``fraction_band`` (envelope over the profile paths inside the 95% cut-off,
     or bootstrap quantiles).
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(5, 3.5), constrained_layout=True)
+    ax = _axes(ax, figsize=(5, 3.5))
     x = calibration.densities if calibration.densities is not None else np.arange(calibration.observed_fractions.shape[0])
     order = np.argsort(x)
     for j, name in enumerate(calibration.phenotypes):
@@ -359,10 +354,7 @@ def plot_profiles(calibration, parameter=None, *, ax=None):
     -------
     Axes
     """
-    import matplotlib.pyplot as plt
-
-    if ax is None:
-        _, ax = plt.subplots(figsize=(4, 3.2), constrained_layout=True)
+    ax = _axes(ax, figsize=(4, 3.2))
     name = next(iter(calibration.profiles)) if parameter is None else parameter
     profile = calibration.profiles[name]
     ax.plot(profile.values, profile.drops, "-o", markersize=3)
