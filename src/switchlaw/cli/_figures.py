@@ -38,7 +38,13 @@ def extinction(ext: dict) -> list:
             ax.errorbar(sim.sizes, sim.probability, yerr=err, fmt="s", ms=4, mfc="none", color=colour, capsize=2,
                         label=f"β = {entry['beta']:.3g}: simulated, τ = {entry['tau']:g} (95 % interval)")
     ax.axhline(0.5, color="0.6", lw=0.8)
-    ax.set_xscale("log" if every.size > 20 and ext["founders"][-1] / ext["founders"][0] > 8 else "linear")
+    if every.size > 20 and ext["founders"][-1] / ext["founders"][0] > 8:
+        from matplotlib.ticker import NullFormatter, ScalarFormatter
+
+        ax.set_xscale("log")
+        ax.set_xticks(ext["founders"])  # the founder sizes themselves, as plain numbers
+        ax.xaxis.set_major_formatter(ScalarFormatter())
+        ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel("founding cells n₀")
     ax.set_ylabel(f"P(die out before {ext['established']} cells)")
     ax.set_ylim(-0.02, 1.02)
