@@ -157,9 +157,9 @@ def test_help_imports_nothing_heavy():
         "heavy = [n for n in ('numpy', 'scipy', 'jax', 'matplotlib', 'cvxpy', 'xarray') if n in sys.modules]; "
         "print(heavy)"
     )
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, encoding="utf-8", check=True)
     assert out.stdout.strip() == "[]"
-    helped = subprocess.run([sys.executable, "-m", "switchlaw.cli._main", "--help"], capture_output=True, text=True)
+    helped = subprocess.run([sys.executable, "-m", "switchlaw.cli._main", "--help"], capture_output=True, text=True, encoding="utf-8")
     assert helped.returncode == 0 and "not a medical device" in helped.stdout
 
 

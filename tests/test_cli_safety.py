@@ -329,7 +329,7 @@ def test_markup_shows_as_text_and_no_script_runs_in_a_real_browser(tmp_path):
          "--disable-background-networking", "--disable-component-update", "--disable-sync",
          f"--user-data-dir={tmp_path / 'profile'}", "--virtual-time-budget=3000", "--dump-dom",
          (out / "report.html").as_uri()],
-        capture_output=True, timeout=120, check=True, text=True,
+        capture_output=True, timeout=120, check=True, text=True, encoding="utf-8",
     ).stdout
 
     class Reader(HTMLParser):

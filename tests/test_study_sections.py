@@ -408,7 +408,7 @@ def test_report_in_a_headless_browser(small_run, tmp_path):
         [browser, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-sync",
          "--disable-background-networking", "--disable-component-update", f"--user-data-dir={tmp_path / 'p'}",
          "--virtual-time-budget=10000", "--dump-dom", page.as_uri()],
-        capture_output=True, text=True, timeout=120, check=True,
+        capture_output=True, text=True, encoding="utf-8", timeout=120, check=True,
     )
     marker = done.stdout.split('data-check="')[1].split('"')[0]
     fields = dict(part.split("=") for part in marker.split())
