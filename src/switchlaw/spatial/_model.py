@@ -83,7 +83,7 @@ class LawTable:
     @classmethod
     def of(cls, model, beta: float, points: int = TABLE_POINTS) -> "LawTable":
         grid = np.linspace(0.0, 1.0, points)
-        return cls(grid, np.stack([model.fractions(r, beta) for r in grid]))
+        return cls(grid, np.asarray(model.fractions(grid, beta), dtype=float))  # one vector call
 
     def __post_init__(self):
         # The interpolant is a pure function of the two arrays above, fixed at construction.
