@@ -213,3 +213,26 @@ def test_a_curve_past_the_critical_beta_is_certified_too():
             _, exact = kuhn_tucker_root(payoff, env, beta_c * (1 + e), star, 1 - star)
             np.testing.assert_allclose(curve.probs_at(i), exact, rtol=1e-8, atol=0)
         checked += 1
+
+
+def test_float64_residual_bound_covers_its_rounding():
+    # The float64 Kuhn–Tucker residual comes with a worst-case rounding bound (Higham 2002,
+    # §3.1 and §4.2); against the same residual in extended precision the actual error must
+    # stay inside it, next to a transition and away from one, on small and large tables.
+    from switchlaw.decision._marginal_newton import kkt_residual
+    from switchlaw.decision._problem import Reduced, evaluate
+
+    rng = np.random.default_rng(20261203)
+    for states, phenotypes in [(3, 2), (50, 4), (2000, 6)]:
+        payoff = rng.normal(size=(states, phenotypes))
+        env = rng.dirichlet(np.ones(states))
+        beta_c = sl.first_critical_beta(payoff, env)
+        for beta in [beta_c * (1 + 1e-6), 3 * beta_c + 0.5]:
+            marginal = sl.solve(payoff, env, beta).marginal
+            problem = Reduced.build(payoff, env, beta)
+            ev = evaluate(problem, marginal)
+            columns = np.flatnonzero(marginal > 0)
+            residual, bound = kkt_residual(problem, ev, marginal, columns=columns, bound=True)
+            exact = kkt_residual(problem, ev, marginal, columns=columns, extended=True)
+            assert np.all(np.abs(residual - exact) <= bound)
+            assert np.all(bound < 1e-12)

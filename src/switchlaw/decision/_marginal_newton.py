@@ -16,7 +16,9 @@ Kuhn–Tucker residual ``c(x) - 1`` computed without cancellation (``expm1`` of 
 and reports convergence only once the Newton correction of every marginal mass in use is below
 :data:`POLICY_RTOL` relative (Newton's method converges quadratically, so the correction bounds
 the remaining error to first order; Nocedal & Wright 2006, Thm. 3.5), or has reached the
-rounding level of float64 (at most :data:`NOISE_RTOL` relative).
+rounding level of float64 (at most :data:`NOISE_RTOL` relative). The float64 residual comes
+with a worst-case bound on its rounding error; where the bound could move a mass in use by
+more than :data:`POLICY_RTOL`, the residual is recomputed in extended precision.
 """
 
 from __future__ import annotations
@@ -48,8 +50,6 @@ POLICY_RTOL = 1e-10
 #: ... or, when rounding stops the corrections from shrinking (entering masses below about
 #: 1e-6), once they are below this.
 NOISE_RTOL = 1e-9
-#: Marginal masses below this are finished with the residual in extended precision.
-_SMALL_MASS = 1e-3
 #: Newton corrections tried at most once the objective gap is below tolerance.
 _FINISH_STEPS = 12
 
@@ -156,7 +156,7 @@ def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
 
 def _support_newton_step(
     problem: Reduced, ratio: np.ndarray | None, r: np.ndarray, c: np.ndarray,
-    hessian: np.ndarray | None = None,
+    hessian: np.ndarray | None = None, error: np.ndarray | None = None,
 ):
     """Newton step on a fixed support, keeping ``sum r = 1``, in scaled variables ``d = r y``.
 
@@ -164,6 +164,11 @@ def _support_newton_step(
     when the marginal spans many orders of magnitude, so this is the accurate step once the
     support is settled. ``hessian`` is ``H`` on the support when the caller already has it
     (then ``ratio`` is not read).
+
+    With ``error`` (a bound on the rounding error of each entry of ``c``) it returns
+    ``(step, rounding)``: ``rounding`` bounds the relative change of any mass that errors up to
+    ``error`` in ``c`` can cause, ``|S^-1| (r error)`` with ``S`` the scaled system (its inverse
+    comes from the same factorisation as the step).
     """
     if hessian is None:
         hessian = hessian_of(problem, ratio)
@@ -172,14 +177,21 @@ def _support_newton_step(
     system[:k, :k] = r[:, None] * hessian * r[None, :]
     system[:k, k] = r
     system[k, :k] = r
-    rhs = np.zeros(k + 1)
-    rhs[:k] = r * c
+    columns = 1 if error is None else k + 2
+    rhs = np.zeros((k + 1, columns), order="F")
+    rhs[:k, 0] = r * c
+    if error is not None:
+        rhs[np.arange(k + 1), np.arange(1, k + 2)] = 1.0
     # LAPACK's gesv directly: numpy's solve wraps the same routine at five times the cost,
     # which dominates on small tables.
     solution, info = _gesv(system, rhs)[2:]
     if info != 0 or not np.isfinite(solution).all():
         solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
-    return r * solution[:k]
+    step = r * solution[:k, 0]
+    if error is None:
+        return step
+    effect = np.abs(solution[:k, 1 : k + 1]) @ (r * error)
+    return step, (float(effect.max()) if np.isfinite(effect).all() else np.inf)
 
 
 def _capped_ratio(ev: Evaluation, index: np.ndarray) -> np.ndarray:
@@ -222,10 +234,37 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     return w - r
 
 
+#: Unit roundoff of float64.
+_UNIT = np.finfo(float).eps / 2
+#: A float64 residual is used for a certificate only if its rounding can move no mass in use by
+#: more than this fraction of :data:`POLICY_RTOL` (a worst-case bound, so the masses are then
+#: within the correction plus at most that much); otherwise the residual is recomputed in
+#: extended precision.
+_ROUNDING_SHARE = 1.0
+
+
+def _summed(terms: np.ndarray) -> np.ndarray:
+    """Column sums of ``terms`` (states x phenotypes) by numpy's pairwise summation.
+
+    A reduction over the first axis of a C-ordered array adds the rows one after another
+    (error growing with the number of states); summing each column contiguously is pairwise,
+    with error at most ``(log2(states) + 16)`` units of roundoff times the sum of absolute
+    values (Higham 2002, §4.2; numpy sums blocks of 128 with eight accumulators).
+    """
+    return np.ascontiguousarray(terms.T).sum(axis=1)
+
+
+def _rounding_factor(states: int, phenotypes: int) -> float:
+    """Units of roundoff in the float64 residual's error bound: ``phenotypes + 5`` for
+    forming each term (a dot product over the phenotypes, ``expm1``, a product, a difference
+    and a quotient; Higham 2002, §3.1) and ``log2(states) + 16`` for the pairwise sum."""
+    return (phenotypes + 5 + math.ceil(math.log2(max(states, 2))) + 16) * _UNIT
+
+
 def kkt_residual(
     problem: Reduced, ev: Evaluation, r: np.ndarray, *, extended: bool = False,
-    columns: np.ndarray | None = None,
-) -> np.ndarray:
+    columns: np.ndarray | None = None, bound: bool = False,
+):
     """``c(x) - 1`` for the phenotypes in ``columns`` (default all, which must include every
     phenotype in use), without the cancellation of forming ``c`` first.
 
@@ -239,6 +278,11 @@ def kkt_residual(
     (``np.longdouble``; iterative refinement with a more precise residual, Higham 2002,
     ch. 12): next to a transition the residual is a sum of terms that cancel to eight or more
     digits, and in float64 its rounding then dominates the entering mass.
+
+    ``bound=True`` (float64 only) returns ``(residual, error bound)``: a bound on the
+    rounding error of every float64 residual, ``_rounding_factor`` times the sum over states
+    of the absolute values that enter each term (every ``expm1`` is <= 0, so those sums are
+    matrix–vector products, no extra pass over the table).
     """
     dtype = np.longdouble if extended else np.float64
     rows = ~ev.low
@@ -257,25 +301,46 @@ def kkt_residual(
     numerator = total * e - z[:, None]
     # expm1 only where it is used (in extended precision it is the costly part)
     m = np.expm1(exponent[near])
-    numerator[near] = total * m - (m @ r_ext)[:, None]
-    scaled = numerator / z[:, None]
-    residual = problem.p[rows].astype(dtype) @ scaled
+    m_r = m @ r_ext
+    numerator[near] = total * m - m_r[:, None]
+    weights = problem.p[rows].astype(dtype) / z
+    if extended:
+        residual = weights @ numerator
+    else:
+        numerator *= weights[:, None]
+        residual = _summed(numerator)
     if ev.low.any():
-        residual = residual + problem.p[ev.low] @ (ev.ratio[ev.low][:, columns] - 1.0)
-    return np.asarray(residual, dtype=np.float64)
+        low_ratio = ev.ratio[ev.low][:, columns]
+        residual = residual + problem.p[ev.low] @ (low_ratio - 1.0)
+    residual = np.asarray(residual, dtype=np.float64)
+    if not bound:
+        return residual
+    # |numerator| <= S |expm1| + |expm1 @ r| (near rows) or S e + z (the others), all signs known
+    far = ~near
+    magnitude = -(weights[near] @ m) * total - weights[near] @ m_r
+    magnitude = magnitude + (weights[far] @ e[far]) * total + weights[far] @ z[far]
+    if ev.low.any():
+        magnitude = magnitude + problem.p[ev.low] @ (low_ratio + 1.0)
+    return residual, _rounding_factor(problem.p.size, columns.size) * magnitude
 
 
 def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended: bool = False):
-    """The support and the Newton correction of its masses (accurate residual)."""
+    """The support, the Newton correction of its masses (accurate residual), and the largest
+    relative change of a mass that float64 rounding of the residual could cause (0 when the
+    residual is in extended precision)."""
     support = index[r[index] > 0]
-    residual = kkt_residual(problem, ev, r, extended=extended, columns=support)
     ratio = _capped_ratio(ev, support)
-    return support, _support_newton_step(problem, ratio, r[support], residual)
+    if extended:
+        residual = kkt_residual(problem, ev, r, extended=True, columns=support)
+        return support, _support_newton_step(problem, ratio, r[support], residual), 0.0
+    residual, error = kkt_residual(problem, ev, r, columns=support, bound=True)
+    step, rounding = _support_newton_step(problem, ratio, r[support], residual, error=error)
+    return support, step, rounding
 
 
 def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarray:
     """Phenotypes in use that a Newton correction would drive to zero or below."""
-    support, step = _correction(problem, ev, r, index)
+    support, step, _ = _correction(problem, ev, r, index)
     return support[r[support] + step <= 0]
 
 
@@ -284,41 +349,52 @@ def _finish_step(
 ):
     """Newton correction on the support with the accurate residual.
 
-    Returns ``(new r, relative size of the correction)``, or ``None`` when the correction
-    would drive a phenotype in use to zero or below (the support is not settled to the
-    policy tolerance; phenotypes outside already have ``c(x) <= e^tol`` from the gap test).
+    Returns ``(new r, relative size of the correction, relative rounding bound)``, or
+    ``None`` when the correction would drive a phenotype in use to zero or below (the support
+    is not settled to the policy tolerance; phenotypes outside already have
+    ``c(x) <= e^tol`` from the gap test).
     """
-    support, step = _correction(problem, ev, r, index, extended)
+    support, step, rounding = _correction(problem, ev, r, index, extended)
     if not np.isfinite(step).all() or (r[support] + step <= 0).any():
         return None
     trial = r.copy()
     trial[support] += step
     size = float(np.max(np.abs(step) / r[support]))
-    return trial / trial.sum(), size
+    return trial / trial.sum(), size, rounding
 
 
-def finish(problem: Reduced, ev: Evaluation, r: np.ndarray, index, allowed, tol: float):
+def finish(
+    problem: Reduced, ev: Evaluation, r: np.ndarray, index, allowed, tol: float,
+    policy: bool = True,
+):
     """Newton finish from a marginal whose objective gap is below ``tol``.
 
     Returns ``(r, ev, gap, size, certified)``: the last marginal whose gap is still below
     ``tol``, and the relative size of the last Newton correction (an estimate of the
     remaining relative error of every mass in use, Newton's method converging quadratically).
+
+    ``policy=False`` settles for the float64 rounding level of the residual (no extended
+    precision): for callers that need ``c(x)`` or the support, never a reported policy.
     """
     gap = _gap(ev.c, allowed)
     previous = np.inf
-    # A mass below _SMALL_MASS is set by a residual that cancels to as many digits: float64
-    # rounding of the residual alone would move it by more than the tolerance.
-    extended = bool(r[index][r[index] > 0].min() < _SMALL_MASS)
+    # Next to a transition a mass in use is set by a residual that cancels to many digits;
+    # where the float64 residual's rounding bound could move a mass by more than a share of
+    # the tolerance, the residual is recomputed in extended precision from then on.
+    extended = False
     size = np.inf
     for _ in range(_FINISH_STEPS):
         finish = _finish_step(problem, ev, r, index, extended)
         if finish is None:
             return r, ev, gap, np.inf, False
-        trial, size = finish
+        trial, size, rounding = finish
+        if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:
+            extended, previous = True, np.inf
+            continue
         if size <= POLICY_RTOL:
             return r, ev, gap, size, True
         if size > 0.25 * previous:  # the corrections stopped shrinking: rounding level
-            if size <= NOISE_RTOL:
+            if size <= NOISE_RTOL or not policy:
                 return r, ev, gap, size, True
             if extended:
                 return r, ev, gap, size, False
@@ -344,25 +420,33 @@ _WARM_ACCURATE = 1e-6
 
 
 def _accurate_residual(expo, m1, p, r, z):
-    """``c(x) - 1`` on the columns of ``expo`` without cancellation: the float64 branch of
-    :func:`kkt_residual`, element for element, with ``m1 = expm1(beta gaps)`` on the same
-    columns and ``z = expo @ r`` given (every row in linear domain)."""
+    """``c(x) - 1`` on the columns of ``expo`` without cancellation, and its rounding bound:
+    the float64 branch of :func:`kkt_residual` with ``bound=True``, element for element, with
+    ``m1 = expm1(beta gaps)`` on the same columns and ``z = expo @ r`` given (every row in
+    linear domain)."""
     total = r.sum()
     near = z >= 0.5
+    w = p / z
+    m1_r = m1 @ r
     if near.all():
-        numerator = total * m1 - (m1 @ r)[:, None]
+        numerator = total * m1 - m1_r[:, None]
+        magnitude = -(w @ m1) * total - w @ m1_r
     elif not near.any():
         numerator = total * expo - z[:, None]
+        magnitude = (w @ expo) * total + w @ z
     else:
-        numerator = np.where(
-            near[:, None], total * m1 - (m1 @ r)[:, None], total * expo - z[:, None]
+        numerator = np.where(near[:, None], total * m1 - m1_r[:, None], total * expo - z[:, None])
+        far = ~near
+        magnitude = (
+            -(w[near] @ m1[near]) * total - w[near] @ m1_r[near]
+            + (w[far] @ expo[far]) * total + w[far] @ z[far]
         )
-    numerator /= z[:, None]
-    return p @ numerator
+    numerator *= w[:, None]
+    return _summed(numerator), _rounding_factor(p.size, r.size) * magnitude
 
 
 def warm_newton(
-    problem: Reduced, start: np.ndarray, allowed: np.ndarray, tol: float
+    problem: Reduced, start: np.ndarray, allowed: np.ndarray, tol: float, policy: bool = True
 ) -> tuple[MarginalResult | np.ndarray | None, int]:
     """Newton's method on the support of a warm start, with the certificate of :func:`finish`.
 
@@ -374,6 +458,8 @@ def warm_newton(
     residual of :func:`kkt_residual`, and the marginal is certified under exactly the rule
     of :func:`finish`: objective gap (every allowed phenotype) at most ``tol`` and a Newton
     correction of every mass in use at most :data:`POLICY_RTOL` relative.
+
+    ``policy=False``: as :func:`finish` with that option (float64 rounding level suffices).
 
     Returns the certified result; or a marginal (full length) from which the general method
     should go on, with the support unsettled or the finish needing extended precision; or
@@ -405,8 +491,6 @@ def warm_newton(
         return (full(r) if moved else None), steps
 
     for steps in range(_WARM_STEPS):
-        if accurate and r.min() < _SMALL_MASS:
-            return handover(steps)  # the finish needs the residual in extended precision
         z = columns @ r
         if not z.min() >= _WARM_Z_FLOOR:
             return handover(steps)
@@ -418,11 +502,17 @@ def warm_newton(
         if accurate:
             if m1 is None:
                 m1 = np.expm1(problem.beta * problem.gaps[:, support])
-            residual = _accurate_residual(columns, m1, p, r, z)
+            residual, error = _accurate_residual(columns, m1, p, r, z)
         else:
             residual = c - 1.0
         scaled = columns * (root_p / z)[:, None]
-        step = _support_newton_step(problem, None, r, residual, scaled.T @ scaled)
+        hessian = scaled.T @ scaled
+        if accurate:
+            step, rounding = _support_newton_step(problem, None, r, residual, hessian, error)
+            if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:
+                return handover(steps)  # the finish needs the residual in extended precision
+        else:
+            step = _support_newton_step(problem, None, r, residual, hessian)
         trial = r + step
         size = float(np.max(np.abs(step) / r))
         # Newton's correction must keep every mass in use positive (else the support moves).
@@ -433,7 +523,7 @@ def warm_newton(
                 return handover(steps)  # settled on the support, but another phenotype wants in
             top = float(c.max())
             gap = math.log(top) if top > 1.0 else 0.0
-            if size <= POLICY_RTOL and gap <= tol:
+            if (size <= POLICY_RTOL or not policy and size > 0.25 * previous) and gap <= tol:
                 return MarginalResult(
                     full(r), gap, steps, True,
                     f"certified gap below tolerance; Newton correction {size:.2g} relative",
@@ -455,6 +545,7 @@ def newton_marginal(
     tol: float = 1e-12,
     max_iter: int = 200,
     warm: bool = False,
+    policy: bool = True,
 ) -> MarginalResult:
     """Minimise ``F(r)`` over the simplex (optionally over phenotypes in ``allowed`` only).
 
@@ -467,13 +558,17 @@ def newton_marginal(
     max_iter : outer (Newton) iterations.
     warm : ``start`` is a warm start (a nearby beta's marginal): try :func:`warm_newton` on
         its support first.
+    policy : certify the policy (every mass in use to :data:`POLICY_RTOL`, extended precision
+        where float64 cannot resolve it). ``False`` certifies the objective gap and takes the
+        masses to float64's rounding level only: for internal callers that use ``c(x)`` or
+        the support, never for a reported policy.
     """
     n = problem.n_phenotypes
     allowed = np.ones(n, dtype=bool) if allowed is None else allowed
     index = np.flatnonzero(allowed)
     done = 0
     if warm:
-        outcome, done = warm_newton(problem, start, allowed, tol)
+        outcome, done = warm_newton(problem, start, allowed, tol, policy)
         if isinstance(outcome, MarginalResult):
             return outcome
         if outcome is not None:
@@ -485,7 +580,7 @@ def newton_marginal(
     iteration = done
     for iteration in range(done + 1, done + max_iter + 1):
         if gap <= tol:
-            r, ev, gap, size, certified = finish(problem, ev, r, index, allowed, tol)
+            r, ev, gap, size, certified = finish(problem, ev, r, index, allowed, tol, policy)
             if certified:
                 return MarginalResult(
                     r, gap, iteration - 1, True,

@@ -168,10 +168,13 @@ def solve_marginal(
     tol: float = 1e-12,
     max_iter: int | None = None,
     gaps: Gaps | None = None,
+    policy: bool = True,
 ) -> MarginalResult:
     """Optimal marginal for distinct phenotype columns (no duplicate columns expected).
 
-    ``gaps`` is ``Gaps.build(payoff, env)`` when the caller already has it.
+    ``gaps`` is ``Gaps.build(payoff, env)`` when the caller already has it; ``policy=False``
+    certifies the objective only, the masses to float64 rounding (see
+    :func:`~._marginal_newton.newton_marginal`): for callers that use ``c(x)`` or the support.
     """
     n = payoff.shape[1]
     allowed = np.ones(n, dtype=bool) if allowed is None else allowed
@@ -179,13 +182,18 @@ def solve_marginal(
     if start is None:
         start = allowed / allowed.sum()
     problem = (gaps or Gaps.build(payoff, env)).at(beta)
-    return METHODS[method](problem, start, allowed=allowed, tol=tol, max_iter=max_iter, warm=warm)
+    return METHODS[method](
+        problem, start, allowed=allowed, tol=tol, max_iter=max_iter, warm=warm, policy=policy
+    )
 
 
-def _newton_with_fallback(problem, start, *, allowed, tol, max_iter, warm=False) -> MarginalResult:
+def _newton_with_fallback(
+    problem, start, *, allowed, tol, max_iter, warm=False, policy=True
+) -> MarginalResult:
     """Newton on the marginal; should it stall, Blahut–Arimoto finishes from where it stopped."""
     result = newton_marginal(
-        problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500, warm=warm
+        problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 500, warm=warm,
+        policy=policy,
     )
     if result.converged or result.policy_uncertified:
         return result  # Blahut–Arimoto cannot resolve what rounding hides from Newton
@@ -199,8 +207,10 @@ def _newton_with_fallback(problem, start, *, allowed, tol, max_iter, warm=False)
     )
 
 
-def _blahut_arimoto(problem, start, *, allowed, tol, max_iter, warm=False) -> MarginalResult:
-    del warm  # the alternation mixes any start with the uniform marginal
+def _blahut_arimoto(
+    problem, start, *, allowed, tol, max_iter, warm=False, policy=True
+) -> MarginalResult:
+    del warm, policy  # the alternation mixes any start with the uniform marginal
     return blahut_arimoto_marginal(
         problem, start, allowed=allowed, tol=tol, max_iter=max_iter or 100_000
     )
@@ -221,6 +231,7 @@ def minimum_information_marginal(
     max_iter: int | None = None,
     prepared: Prepared | None = None,
     past_first: bool = False,
+    policy: bool = True,
 ) -> tuple[np.ndarray, MarginalResult, str]:
     """Optimal marginal over all phenotypes (duplicates merged), and the status word.
 
@@ -228,7 +239,8 @@ def minimum_information_marginal(
     ``prepared`` is ``Prepared.build(payoff, env)`` when the caller already has it;
     ``past_first`` says that the caller knows ``beta`` to be above the first critical beta
     (along increasing betas, once one beta is: the test of :func:`stays_deterministic` is
-    a convex function of beta equal to one at zero, so it stays above one).
+    a convex function of beta equal to one at zero, so it stays above one). ``policy=False``
+    certifies the objective only (see :func:`solve_marginal`).
     """
     n = payoff.shape[1]
     if n == 1:
@@ -255,7 +267,7 @@ def minimum_information_marginal(
                 start = None
         record = solve_marginal(
             distinct, env, beta, method=method, start=start, tol=tol, max_iter=max_iter,
-            gaps=prepared.gaps,
+            gaps=prepared.gaps, policy=policy,
         )
         r_distinct = record.marginal
         status = "converged" if record.converged else "not-converged"

@@ -52,9 +52,12 @@ class _Locator:
             self.payoff, np.arange(self.n), np.ones(self.n, dtype=int), prepared.gaps
         )
 
+    # Both searches below use c(x) and the support only, never a policy: their solves are
+    # certified in the objective, with the masses at float64's rounding level (policy=False).
+
     def full(self, beta: float, start: np.ndarray | None) -> np.ndarray:
         r, _, _ = minimum_information_marginal(
-            self.payoff, self.env, beta, start=start, prepared=self.identity
+            self.payoff, self.env, beta, start=start, prepared=self.identity, policy=False
         )
         return r
 
@@ -71,7 +74,8 @@ class _Locator:
         if seen:
             start = seen[min(seen, key=lambda b: abs(b - beta))][1]
         record = solve_marginal(
-            self.payoff, self.env, beta, start=start, allowed=allowed, gaps=self.gaps
+            self.payoff, self.env, beta, start=start, allowed=allowed, gaps=self.gaps,
+            policy=False,
         )
         value = float(np.log(evaluate(self.gaps.at(beta), record.marginal).c[x]))
         if record.converged:
