@@ -31,7 +31,7 @@ import numpy as np
 from scipy.linalg.lapack import dgesv as _gesv
 from scipy.optimize import brentq
 
-from ._problem import Evaluation, Reduced, evaluate, objective
+from ._problem import Evaluation, Reduced, Scratch, evaluate, objective
 
 #: Predicted decreases below this (relative to ``1 + |F|``) are beyond the resolution of
 #: ``F`` in float64, so the line search cannot judge them; the full step is taken.
@@ -243,7 +243,7 @@ _UNIT = np.finfo(float).eps / 2
 _ROUNDING_SHARE = 1.0
 
 
-def _summed(terms: np.ndarray) -> np.ndarray:
+def _summed(terms: np.ndarray, scratch: Scratch | None = None) -> np.ndarray:
     """Column sums of ``terms`` (states x phenotypes) by numpy's pairwise summation.
 
     A reduction over the first axis of a C-ordered array adds the rows one after another
@@ -251,7 +251,11 @@ def _summed(terms: np.ndarray) -> np.ndarray:
     with error at most ``(log2(states) + 16)`` units of roundoff times the sum of absolute
     values (Higham 2002, §4.2; numpy sums blocks of 128 with eight accumulators).
     """
-    return np.ascontiguousarray(terms.T).sum(axis=1)
+    if scratch is None:
+        return np.ascontiguousarray(terms.T).sum(axis=1)
+    transposed = scratch.get("transposed", terms.shape[::-1])
+    np.copyto(transposed, terms.T)
+    return transposed.sum(axis=1)
 
 
 def _rounding_factor(states: int, phenotypes: int) -> float:
@@ -284,44 +288,61 @@ def kkt_residual(
     of the absolute values that enter each term (every ``expm1`` is <= 0, so those sums are
     matrix–vector products, no extra pass over the table).
     """
-    dtype = np.longdouble if extended else np.float64
     rows = ~ev.low
     columns = np.arange(r.size) if columns is None else columns
-    gaps = problem.gaps[np.ix_(rows, columns)]
+    r_col = r[columns]
     if extended:
-        exponent = dtype(problem.beta) * gaps.astype(dtype)
-        e = np.exp(exponent)
+        residual = _extended_residual(problem, np.flatnonzero(rows), columns, r_col)
     else:
-        exponent = problem.beta * gaps
-        e = problem.expo[np.ix_(rows, columns)]
-    r_ext = r[columns].astype(dtype)
-    total = r_ext.sum()
-    z = e @ r_ext
-    near = z >= 0.5
-    numerator = total * e - z[:, None]
-    # expm1 only where it is used (in extended precision it is the costly part)
-    m = np.expm1(exponent[near])
-    m_r = m @ r_ext
-    numerator[near] = total * m - m_r[:, None]
-    weights = problem.p[rows].astype(dtype) / z
-    if extended:
-        residual = weights @ numerator
-    else:
-        numerator *= weights[:, None]
-        residual = _summed(numerator)
+        scratch = problem.scratch
+        shape = (problem.p.size, columns.size)
+        if rows.all():
+            e = np.take(problem.expo, columns, axis=1, out=scratch.get("columns", shape))
+            m1_t = np.take(
+                problem.gaps_by_phenotype, columns, axis=0, out=scratch.get("m1", shape[::-1])
+            )
+            m1_t *= problem.beta
+            np.expm1(m1_t, out=m1_t)
+        else:
+            e = problem.expo[np.ix_(rows, columns)]
+            m1_t = np.expm1(problem.beta * problem.gaps_by_phenotype[np.ix_(columns, rows)])
+        residual, error = _accurate_residual(e, m1_t, problem.p[rows], r_col, e @ r_col, scratch)
     if ev.low.any():
         low_ratio = ev.ratio[ev.low][:, columns]
         residual = residual + problem.p[ev.low] @ (low_ratio - 1.0)
+        if not extended:
+            error = error + _rounding_factor(problem.p.size, columns.size) * (
+                problem.p[ev.low] @ (low_ratio + 1.0)
+            )
     residual = np.asarray(residual, dtype=np.float64)
-    if not bound:
-        return residual
-    # |numerator| <= S |expm1| + |expm1 @ r| (near rows) or S e + z (the others), all signs known
-    far = ~near
-    magnitude = -(weights[near] @ m) * total - weights[near] @ m_r
-    magnitude = magnitude + (weights[far] @ e[far]) * total + weights[far] @ z[far]
-    if ev.low.any():
-        magnitude = magnitude + problem.p[ev.low] @ (low_ratio + 1.0)
-    return residual, _rounding_factor(problem.p.size, columns.size) * magnitude
+    if bound and not extended:
+        return residual, error
+    return residual
+
+
+def _extended_residual(problem: Reduced, rows: np.ndarray, columns: np.ndarray, r: np.ndarray):
+    """The linear-domain rows of :func:`kkt_residual` in extended precision, one
+    transcendental per entry: ``expm1`` where the row's partition sum is near one (there
+    ``z = S + expm1 @ r``), ``exp`` elsewhere."""
+    ld = np.longdouble
+    beta = ld(problem.beta)
+    r_ext = r.astype(ld)
+    total = r_ext.sum()
+    near = problem.expo[np.ix_(rows, columns)] @ r >= 0.5  # which form; either is exact
+    residual = np.zeros(columns.size, dtype=ld)
+    if near.any():
+        m = np.expm1(beta * problem.gaps[np.ix_(rows[near], columns)].astype(ld))
+        m_r = m @ r_ext
+        m *= total
+        m -= m_r[:, None]
+        residual += (problem.p[rows[near]].astype(ld) / (total + m_r)) @ m
+    if not near.all():
+        e = np.exp(beta * problem.gaps[np.ix_(rows[~near], columns)].astype(ld))
+        z = e @ r_ext
+        e *= total
+        e -= z[:, None]
+        residual += (problem.p[rows[~near]].astype(ld) / z) @ e
+    return residual
 
 
 def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended: bool = False):
@@ -417,32 +438,39 @@ _WARM_Z_FLOOR = 1.0 / _RATIO_CAP
 #: Steps smaller than this (relative), or no longer shrinking, are followed by steps with the
 #: accurate residual (the next step of Newton's method then reaches the certified size).
 _WARM_ACCURATE = 1e-6
+#: After a step smaller than this (relative), the next step keeps the Hessian of the step
+#: before (a chord step): it differs by about the step's size, which then scales the next
+#: correction by ``1 + O(1e-5)`` and leaves its use as a certificate intact.
+_CHORD = 1e-5
 
 
-def _accurate_residual(expo, m1, p, r, z):
+def _accurate_residual(expo, m1_t, p, r, z, scratch: Scratch):
     """``c(x) - 1`` on the columns of ``expo`` without cancellation, and its rounding bound:
     the float64 branch of :func:`kkt_residual` with ``bound=True``, element for element, with
-    ``m1 = expm1(beta gaps)`` on the same columns and ``z = expo @ r`` given (every row in
-    linear domain)."""
+    ``m1_t = expm1(beta gaps).T`` (phenotypes x states, C order) on the same columns and
+    ``z = expo @ r`` given (every row in linear domain). Temporaries live in ``scratch``; the
+    terms are formed phenotype by phenotype, so their sums over states are pairwise."""
     total = r.sum()
     near = z >= 0.5
     w = p / z
-    m1_r = m1 @ r
+    m1_r = r @ m1_t
+    numerator = scratch.get("numerator", m1_t.shape)
     if near.all():
-        numerator = total * m1 - m1_r[:, None]
-        magnitude = -(w @ m1) * total - w @ m1_r
-    elif not near.any():
-        numerator = total * expo - z[:, None]
-        magnitude = (w @ expo) * total + w @ z
+        np.multiply(m1_t, total, out=numerator)
+        numerator -= m1_r
+        magnitude = -(m1_t @ w) * total - w @ m1_r
     else:
-        numerator = np.where(near[:, None], total * m1 - m1_r[:, None], total * expo - z[:, None])
+        expo_t = expo.T
+        np.copyto(
+            numerator, np.where(near, total * m1_t - m1_r, total * expo_t - z),
+        )
         far = ~near
         magnitude = (
-            -(w[near] @ m1[near]) * total - w[near] @ m1_r[near]
-            + (w[far] @ expo[far]) * total + w[far] @ z[far]
+            -(m1_t[:, near] @ w[near]) * total - w[near] @ m1_r[near]
+            + (expo_t[:, far] @ w[far]) * total + w[far] @ z[far]
         )
-    numerator *= w[:, None]
-    return _summed(numerator), _rounding_factor(p.size, r.size) * magnitude
+    numerator *= w
+    return numerator.sum(axis=1), _rounding_factor(p.size, r.size) * magnitude
 
 
 def warm_newton(
@@ -472,12 +500,18 @@ def warm_newton(
     if k < 2:
         return None, 0
     unused = np.flatnonzero(allowed & ~used)
-    expo, p = problem.expo, problem.p
-    columns = expo if k == n else expo[:, support]
+    expo, p, scratch = problem.expo, problem.p, problem.scratch
+    m = p.size
+    if k == n:
+        columns = expo
+    else:
+        columns = np.take(expo, support, axis=1, out=scratch.get("columns", (m, k)))
     others = expo[:, unused] if unused.size else None
     root_p = np.sqrt(p)
+    scaled = scratch.get("scaled", (m, k))
     r = start[support] / start[support].sum()
     m1 = None
+    hessian = None
     accurate = False
     previous = np.inf
     moved = False
@@ -501,12 +535,17 @@ def warm_newton(
             return handover(steps)  # a phenotype far outside wants in: the support changes
         if accurate:
             if m1 is None:
-                m1 = np.expm1(problem.beta * problem.gaps[:, support])
-            residual, error = _accurate_residual(columns, m1, p, r, z)
+                m1 = np.take(
+                    problem.gaps_by_phenotype, support, axis=0, out=scratch.get("m1", (k, m))
+                )
+                m1 *= problem.beta
+                np.expm1(m1, out=m1)
+            residual, error = _accurate_residual(columns, m1, p, r, z, scratch)
         else:
             residual = c - 1.0
-        scaled = columns * (root_p / z)[:, None]
-        hessian = scaled.T @ scaled
+        if hessian is None or previous > _CHORD:
+            np.multiply(columns, (root_p / z)[:, None], out=scaled)
+            hessian = scaled.T @ scaled
         if accurate:
             step, rounding = _support_newton_step(problem, None, r, residual, hessian, error)
             if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:

@@ -15,7 +15,9 @@ almost unused) are recomputed in log domain; only those rows pay for it.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+
+from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
@@ -27,16 +29,52 @@ UNDERFLOW = 1e-250
 _BIG = 1e300
 
 
+class Scratch:
+    """Work arrays that the solves of one caller reuse, one solve at a time.
+
+    Every temporary of size ``states x phenotypes`` freshly allocated costs the operating
+    system's zeroing of its pages on first touch (measured: a third of a large curve's time);
+    a named work array is allocated once and handed out again, as a view of the needed shape.
+    """
+
+    __slots__ = ("_flat", "_kept")
+
+    def __init__(self) -> None:
+        self._flat: dict[str, np.ndarray] = {}
+        self._kept: dict[str, np.ndarray] = {}
+
+    def kept(self, name: str, make) -> np.ndarray:
+        """``make()``, computed on the first call with ``name`` and kept (for arrays derived
+        from the beta-independent data that the work arrays serve)."""
+        found = self._kept.get(name)
+        if found is None:
+            found = self._kept[name] = make()
+        return found
+
+    def get(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+        """An uninitialised float64 array of ``shape``, the same memory on every call with
+        ``name`` (whatever the previous caller left in it is overwritten)."""
+        size = math.prod(shape)
+        flat = self._flat.get(name)
+        if flat is None or flat.size < size:
+            flat = self._flat[name] = np.empty(size)
+        return flat[:size].reshape(shape)
+
+
 @dataclass(frozen=True)
 class Gaps:
     """The beta-independent part of a problem: ``u(y, x) - max_x u(y, x)`` on states with ``p(y) > 0``.
 
-    Built once per payoff table and shared by every beta of a curve.
+    Built once per payoff table and shared by every beta of a curve, which it serves one beta
+    at a time: :meth:`at` writes the exponentials into the memory of the previous beta's
+    (a problem from :meth:`at` is valid until the next call with another beta).
     """
 
     p: np.ndarray
     gaps: np.ndarray
     mean_row_max: float
+    scratch: Scratch = field(default_factory=Scratch, compare=False, repr=False)
+    _last: list = field(default_factory=list, compare=False, repr=False)
 
     @classmethod
     def build(cls, payoff: np.ndarray, env: np.ndarray) -> "Gaps":
@@ -47,10 +85,18 @@ class Gaps:
         return cls(p=p, gaps=u - row_max[:, None], mean_row_max=float(p @ row_max))
 
     def at(self, beta: float) -> "Reduced":
-        return Reduced(
-            p=self.p, gaps=self.gaps, beta=beta, expo=np.exp(beta * self.gaps),
-            offset=beta * self.mean_row_max,
+        """The problem at ``beta`` (the same object again when ``beta`` is the last one)."""
+        if self._last and self._last[0].beta == beta:
+            return self._last[0]
+        expo = self.scratch.get("expo", self.gaps.shape)
+        np.multiply(self.gaps, beta, out=expo)
+        np.exp(expo, out=expo)
+        problem = Reduced(
+            p=self.p, gaps=self.gaps, beta=beta, expo=expo, offset=beta * self.mean_row_max,
+            scratch=self.scratch,
         )
+        self._last[:] = [problem]
+        return problem
 
 
 @dataclass(frozen=True)
@@ -71,6 +117,8 @@ class Reduced:
     beta: float
     expo: np.ndarray
     offset: float
+    #: Work arrays shared with the other problems of the same :class:`Gaps` (one at a time).
+    scratch: Scratch = field(default_factory=Scratch, compare=False, repr=False)
 
     @classmethod
     def build(cls, payoff: np.ndarray, env: np.ndarray, beta: float) -> "Reduced":
@@ -79,6 +127,12 @@ class Reduced:
     @property
     def n_phenotypes(self) -> int:
         return self.expo.shape[1]
+
+    @property
+    def gaps_by_phenotype(self) -> np.ndarray:
+        """``gaps.T`` in C order (phenotypes x states), made once per table: a phenotype's
+        gaps are then contiguous, and sums over states are pairwise."""
+        return self.scratch.kept("gaps_t", lambda: np.ascontiguousarray(self.gaps.T))
 
     def log_terms(self, r: np.ndarray, rows: np.ndarray) -> np.ndarray:
         """``beta * gaps + log r`` on the given rows (log domain)."""
