@@ -173,23 +173,26 @@ def _support_newton_step(
     if hessian is None:
         hessian = hessian_of(problem, ratio)
     k = r.size
-    system = np.zeros((k + 1, k + 1))
-    system[:k, :k] = r[:, None] * hessian * r[None, :]
+    system = np.empty((k + 1, k + 1))
+    np.multiply(hessian, np.multiply.outer(r, r), out=system[:k, :k])
     system[:k, k] = r
     system[k, :k] = r
-    columns = 1 if error is None else k + 2
-    rhs = np.zeros((k + 1, columns), order="F")
-    rhs[:k, 0] = r * c
-    if error is not None:
-        rhs[np.arange(k + 1), np.arange(1, k + 2)] = 1.0
+    system[k, k] = 0.0
+    if error is None:
+        rhs = np.empty(k + 1)
+        np.multiply(r, c, out=rhs[:k])
+        rhs[k] = 0.0
+    else:
+        rhs = np.eye(k + 1, k + 2, 1, order="F")
+        np.multiply(r, c, out=rhs[:k, 0])
     # LAPACK's gesv directly: numpy's solve wraps the same routine at five times the cost,
     # which dominates on small tables.
     solution, info = _gesv(system, rhs)[2:]
-    if info != 0 or not np.isfinite(solution).all():
+    if info != 0 or not math.isfinite(solution.sum()):
         solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
-    step = r * solution[:k, 0]
     if error is None:
-        return step
+        return r * solution[:k]
+    step = r * solution[:k, 0]
     effect = np.abs(solution[:k, 1 : k + 1]) @ (r * error)
     return step, (float(effect.max()) if np.isfinite(effect).all() else np.inf)
 
@@ -451,24 +454,25 @@ def _accurate_residual(expo, m1_t, p, r, z, scratch: Scratch):
     ``z = expo @ r`` given (every row in linear domain). Temporaries live in ``scratch``; the
     terms are formed phenotype by phenotype, so their sums over states are pairwise."""
     total = r.sum()
-    near = z >= 0.5
     w = p / z
     m1_r = r @ m1_t
-    numerator = scratch.get("numerator", m1_t.shape)
-    if near.all():
-        np.multiply(m1_t, total, out=numerator)
-        numerator -= m1_r
-        magnitude = -(m1_t @ w) * total - w @ m1_r
-    else:
-        expo_t = expo.T
-        np.copyto(
-            numerator, np.where(near, total * m1_t - m1_r, total * expo_t - z),
-        )
-        far = ~near
+    numerator = np.multiply(m1_t, total, out=scratch.get("numerator", m1_t.shape))
+    numerator -= m1_r
+    far = z < 0.5
+    if far.any():
+        # S e - z there: the same value as S expm1 - expm1 @ r, without losing e to rounding
+        far = np.flatnonzero(far)
+        expo_far = expo[far].T
+        numerator[:, far] = total * expo_far - z[far]
+        w_far = np.zeros_like(w)
+        w_far[far] = w[far]
+        w_near = w - w_far
         magnitude = (
-            -(m1_t[:, near] @ w[near]) * total - w[near] @ m1_r[near]
-            + (expo_t[:, far] @ w[far]) * total + w[far] @ z[far]
+            -(m1_t @ w_near) * total - w_near @ m1_r + (expo_far @ w[far]) * total
+            + w[far] @ z[far]
         )
+    else:
+        magnitude = -(m1_t @ w) * total - w @ m1_r
     numerator *= w
     return numerator.sum(axis=1), _rounding_factor(p.size, r.size) * magnitude
 
