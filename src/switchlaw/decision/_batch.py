@@ -9,20 +9,24 @@ are solved as one stack by LAPACK.
 The step is the one of :func:`._marginal_newton._support_newton_step` (scaled variables
 ``d = r y``, the constraint ``sum r = 1`` kept), applied on each problem's support: a
 phenotype out of use has its row and column of the system replaced by the identity, so its
-mass stays zero. Far from the optimum the step is damped (Armijo backtracking on ``F``); a
-phenotype whose mass the step would drive below zero while ``c(x) < 1`` leaves the support.
-Close to the optimum the right-hand side is the Kuhn–Tucker residual of
-:func:`._marginal_newton.kkt_residual` (``expm1`` of the payoff gaps, no cancellation; in
-extended precision when a mass in use is below the module's ``_SMALL_MASS``).
+mass stays zero. Far from the optimum the step is damped (Armijo backtracking on ``F``) and
+stops short of the simplex's boundary; a phenotype the step would empty leaves the support
+once its mass is small and ``c(x) < 1``, and an unused phenotype with ``c(x) > e^tol`` enters
+by one Newton step of the one-dimensional problem along ``e_x - r``. Close to the optimum the
+right-hand side is the Kuhn–Tucker residual of :func:`._marginal_newton.kkt_residual`
+(``expm1`` of the payoff gaps, no cancellation; in extended precision when a mass in use is
+below the module's ``_SMALL_MASS``).
 
 Every marginal returned is certified by the rule of the single-problem solver: objective gap
 ``log max_x c(x) <= tol`` over every phenotype, and a Newton correction of every mass in use at
-most :data:`._marginal_newton.POLICY_RTOL` relative. A problem that does not meet it within a
-few steps (its support has to grow, rounding stops the corrections, a partition sum
-underflows) is handed to :func:`._minimum_information.minimum_information_marginal`, which
-certifies it under the same rule or reports it not converged. Problems below the first
-critical beta, ``beta = 0`` and a single phenotype get the closed forms of that function, and
-identical phenotype columns share their mass equally, as there.
+most :data:`._marginal_newton.POLICY_RTOL` relative (the marginal returned is the certified one
+plus that correction, which Newton's quadratic convergence makes the more accurate). A problem
+that does not meet it within :data:`_STACK_STEPS` steps (rounding stops the corrections, a
+partition sum underflows, a step cannot be solved) is handed to
+:func:`._minimum_information.minimum_information_marginal`, which certifies it under the
+same rule or reports it not converged. Problems below the first critical beta, ``beta = 0``
+and a single phenotype get the closed forms of that function, and identical phenotype columns
+share their mass equally, as there.
 
 References
 ----------

@@ -176,10 +176,15 @@ def _stacked(model, entry: _Law, densities: np.ndarray, size: int):
     return found
 
 
+#: Fewest missing densities solved as one stack: below it a warm-started single solve per
+#: density is cheaper (continuation asks for one or two densities at a time).
+_STACK_MIN = 16
+
+
 def _derive(objective: str, problems: list, beta: float, entry: _Law) -> list:
     if objective == "max-entropy":
         return [p @ max_entropy_policy(u, beta, None) for p, u in problems]
-    if len(problems) > 1 and len({u.shape for _, u in problems}) == 1:
+    if len(problems) >= _STACK_MIN and len({u.shape for _, u in problems}) == 1:
         # Every density at once (one Newton step of all of them is a few array operations);
         # a density the stack cannot certify is solved alone, warm-started from its
         # neighbour, under the same certificate.
