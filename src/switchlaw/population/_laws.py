@@ -16,6 +16,7 @@ from collections import OrderedDict
 import numpy as np
 
 from .._errors import InputError
+from ..decision._batch import solve_stack
 from ..decision._minimum_information import minimum_information_marginal
 from ..decision._solve import max_entropy_policy
 from ..laws._law import decision_problem
@@ -111,7 +112,8 @@ def law_fractions(model, densities: np.ndarray, beta: float, cache: LawCache) ->
     Max-entropy laws are closed form given the decision problem: only the problems are kept
     (per density, and stacked per density vector), and the fractions for all densities come
     from one array operation. Min-information laws keep each ``(density, beta)`` marginal and
-    run the solver for the missing ones, each warm-started from the last.
+    solve the missing ones together (``decision._batch.solve_stack``) when their problems have
+    one shape, otherwise one by one, each warm-started from the last.
     """
     n = model.division.size
     with cache._lock:
@@ -174,9 +176,25 @@ def _stacked(model, entry: _Law, densities: np.ndarray, size: int):
     return found
 
 
+#: Fewest missing densities solved as one stack: below it a warm-started single solve per
+#: density is cheaper (continuation asks for one or two densities at a time).
+_STACK_MIN = 16
+
+
 def _derive(objective: str, problems: list, beta: float, entry: _Law) -> list:
     if objective == "max-entropy":
         return [p @ max_entropy_policy(u, beta, None) for p, u in problems]
+    if len(problems) >= _STACK_MIN and len({u.shape for _, u in problems}) == 1:
+        # Every density at once (one Newton step of all of them is a few array operations);
+        # a density the stack cannot certify is solved alone, warm-started from its
+        # neighbour, under the same certificate.
+        found = solve_stack(
+            np.stack([u for _, u in problems]), np.stack([p for p, _ in problems]), beta
+        )
+        converged = np.flatnonzero(found.converged)
+        if converged.size:
+            entry.last_marginal = found.marginals[converged[-1]].copy()
+        return list(found.marginals)
     derived = []
     for p, u in problems:
         r, record, _ = minimum_information_marginal(u, p, beta, start=entry.last_marginal)
