@@ -14,8 +14,9 @@ stops short of the simplex's boundary; a phenotype the step would empty leaves t
 once its mass is small and ``c(x) < 1``, and an unused phenotype with ``c(x) > e^tol`` enters
 by one Newton step of the one-dimensional problem along ``e_x - r``. Close to the optimum the
 right-hand side is the Kuhn–Tucker residual of :func:`._marginal_newton.kkt_residual`
-(``expm1`` of the payoff gaps, no cancellation; in extended precision when a mass in use is
-below the module's ``_SMALL_MASS``).
+(``expm1`` of the payoff gaps, no cancellation), with the same worst-case bound on its
+rounding: where that bound could move a mass in use by more than the policy tolerance, the
+problem's residual is computed in extended precision from then on.
 
 Every marginal returned is certified by the rule of the single-problem solver: objective gap
 ``log max_x c(x) <= tol`` over every phenotype, and a Newton correction of every mass in use at
@@ -42,7 +43,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._marginal_newton import _SMALL_MASS, POLICY_RTOL
+from ._marginal_newton import POLICY_RTOL, _rounding_factor
 from ._minimum_information import minimum_information_marginal
 
 #: Newton steps a problem may take in the stack before it is handed to the single solver.
@@ -249,6 +250,7 @@ def _newton_stack(u_seen, p, betas, start, allowed, tol):
     done = np.zeros(k, dtype=bool)
     steps = np.zeros(k, dtype=int)
     accurate = np.zeros(k, dtype=bool)
+    extended = np.zeros(k, dtype=bool)
     previous = np.full(k, np.inf)
     active = np.arange(k)  # problems still iterating
     for _ in range(_STACK_STEPS):
@@ -265,17 +267,25 @@ def _newton_stack(u_seen, p, betas, start, allowed, tol):
         gap = np.log(np.maximum(top, 1.0))
         acc = accurate[active]
         residual = c - 1.0
+        scaled = e * (root_p[active] / z)[:, :, None]
+        hessian = np.einsum("kmi,kmj->kij", scaled, scaled)
         if acc.any():
-            small = acc & (np.where(support, rr, np.inf).min(axis=1) < _SMALL_MASS)
-            plain = acc & ~small
+            plain = acc & ~extended[active]
             if plain.any():
-                residual[plain] = _accurate_residual(e[plain], m1[active[plain]], pp[plain], rr[plain], z[plain])
+                residual[plain], bound = _accurate_residual(
+                    e[plain], m1[active[plain]], pp[plain], rr[plain], z[plain]
+                )
+                # As the single solver: float64 only where its rounding cannot move a mass
+                # in use by more than the policy tolerance.
+                rough = np.flatnonzero(plain)[
+                    _rounding(hessian[plain], rr[plain], support[plain], bound) > POLICY_RTOL
+                ]
+                extended[active[rough]] = True
+            small = acc & extended[active]
             if small.any():
                 residual[small] = _extended_residual(
                     gaps[active[small]], betas[active[small]], pp[small], rr[small]
                 )
-        scaled = e * (root_p[active] / z)[:, :, None]
-        hessian = np.einsum("kmi,kmj->kij", scaled, scaled)
         step, ok = _scaled_steps(hessian, rr, residual, support)
         alive &= ok
         size = np.max(np.where(support, np.abs(step) / np.where(support, rr, 1.0), 0.0), axis=1)
@@ -400,17 +410,43 @@ def _backtrack(e, p, z, r, step, c, t):
 
 
 def _accurate_residual(e, m1, p, r, z):
-    """``c(x) - 1`` without cancellation for every problem: the float64 branch of
-    :func:`._marginal_newton.kkt_residual` (rows with ``z >= 0.5`` through ``expm1``)."""
+    """``c(x) - 1`` without cancellation for every problem, and a bound on its rounding: the
+    float64 branch of :func:`._marginal_newton.kkt_residual` with ``bound=True`` (rows with
+    ``z >= 0.5`` through ``expm1``; sums over states pairwise, phenotype by phenotype)."""
     total = r.sum(axis=1)
     near = (z >= 0.5)[:, :, None]
+    m1_r = np.einsum("kmn,kn->km", m1, r)[:, :, None]
     numerator = np.where(
-        near,
-        total[:, None, None] * m1 - np.einsum("kmn,kn->km", m1, r)[:, :, None],
-        total[:, None, None] * e - z[:, :, None],
+        near, total[:, None, None] * m1 - m1_r, total[:, None, None] * e - z[:, :, None],
     )
-    numerator /= z[:, :, None]
-    return np.einsum("km,kmn->kn", p, numerator)
+    w = (p / z)[:, :, None]
+    numerator *= w
+    residual = np.ascontiguousarray(numerator.transpose(0, 2, 1)).sum(axis=2)
+    magnitude = np.where(
+        near, -total[:, None, None] * m1 - m1_r, total[:, None, None] * e + z[:, :, None],
+    )
+    magnitude = np.einsum("kmn,kmn->kn", magnitude, np.broadcast_to(w, magnitude.shape))
+    return residual, _rounding_factor(p.shape[1], r.shape[1]) * magnitude
+
+
+def _rounding(hessian, r, support, bound):
+    """For every problem, the largest relative change of a mass in use that residual errors
+    up to ``bound`` can cause in the Newton step (``|S^-1| (r bound)``, ``S`` the scaled
+    system of :func:`_scaled_steps`)."""
+    k, n = r.shape
+    system = np.zeros((k, n + 1, n + 1))
+    system[:, :n, :n] = r[:, :, None] * hessian * r[:, None, :]
+    diagonal = np.arange(n)
+    system[:, diagonal, diagonal] += ~support
+    system[:, :n, n] = r
+    system[:, n, :n] = r
+    try:
+        inverse = np.linalg.inv(system)
+    except np.linalg.LinAlgError:
+        return np.full(k, np.inf)
+    effect = np.einsum("kij,kj->ki", np.abs(inverse[:, :n, :n]), np.where(support, r * bound, 0.0))
+    effect = np.where(support, effect, 0.0).max(axis=1)
+    return np.where(np.isfinite(effect), effect, np.inf)
 
 
 def _extended_residual(gaps, betas, p, r):
