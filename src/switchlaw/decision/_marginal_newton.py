@@ -447,13 +447,18 @@ _WARM_ACCURATE = 1e-6
 _CHORD = 1e-5
 
 
+#: Reductions called as ufunc methods (the array methods add two Python frames per call,
+#: which on small tables costs as much as the arithmetic).
+_sum, _min, _max = np.add.reduce, np.minimum.reduce, np.maximum.reduce
+
+
 def _accurate_residual(expo, m1_t, p, r, z, scratch: Scratch):
     """``c(x) - 1`` on the columns of ``expo`` without cancellation, and its rounding bound:
     the float64 branch of :func:`kkt_residual` with ``bound=True``, element for element, with
     ``m1_t = expm1(beta gaps).T`` (phenotypes x states, C order) on the same columns and
     ``z = expo @ r`` given (every row in linear domain). Temporaries live in ``scratch``; the
     terms are formed phenotype by phenotype, so their sums over states are pairwise."""
-    total = r.sum()
+    total = _sum(r)
     w = p / z
     m1_r = r @ m1_t
     numerator = np.multiply(m1_t, total, out=scratch.get("numerator", m1_t.shape))
@@ -499,11 +504,11 @@ def warm_newton(
     """
     n = problem.n_phenotypes
     used = allowed & (start > 0)
-    support = np.flatnonzero(used)
+    support = used.nonzero()[0]
     k = support.size
     if k < 2:
         return None, 0
-    unused = np.flatnonzero(allowed & ~used)
+    unused = (allowed & ~used).nonzero()[0]
     expo, p, scratch = problem.expo, problem.p, problem.scratch
     m = p.size
     if k == n:
@@ -511,9 +516,10 @@ def warm_newton(
     else:
         columns = np.take(expo, support, axis=1, out=scratch.get("columns", (m, k)))
     others = expo[:, unused] if unused.size else None
-    root_p = np.sqrt(p)
+    root_p = scratch.kept("root_p", lambda: np.sqrt(p))
     scaled = scratch.get("scaled", (m, k))
-    r = start[support] / start[support].sum()
+    r = start[support]
+    r = r / _sum(r)
     m1 = None
     hessian = None
     accurate = False
@@ -530,12 +536,12 @@ def warm_newton(
 
     for steps in range(_WARM_STEPS):
         z = columns @ r
-        if not z.min() >= _WARM_Z_FLOOR:
+        if not _min(z) >= _WARM_Z_FLOOR:
             return handover(steps)
         w = p / z
         c = w @ columns
         outside = None if others is None else w @ others
-        if outside is not None and outside.max() > _FAR:
+        if outside is not None and _max(outside) > _FAR:
             return handover(steps)  # a phenotype far outside wants in: the support changes
         if accurate:
             if m1 is None:
@@ -557,14 +563,14 @@ def warm_newton(
         else:
             step = _support_newton_step(problem, None, r, residual, hessian)
         trial = r + step
-        size = float(np.max(np.abs(step) / r))
+        size = float(_max(np.abs(step / r)))
         # Newton's correction must keep every mass in use positive (else the support moves).
-        if not (trial.min() > 0 and size < np.inf):
+        if not (_min(trial) > 0 and size < np.inf):
             return handover(steps)
         if accurate:
             if outside is not None and _gap(outside, slice(None)) > tol:
                 return handover(steps)  # settled on the support, but another phenotype wants in
-            top = float(c.max())
+            top = float(_max(c))
             gap = math.log(top) if top > 1.0 else 0.0
             if (size <= POLICY_RTOL or not policy and size > 0.25 * previous) and gap <= tol:
                 return MarginalResult(
@@ -573,7 +579,7 @@ def warm_newton(
                 ), steps
             if size > 0.25 * previous:
                 return handover(steps)  # rounding level: the general finish decides
-        r = trial / trial.sum()
+        r = trial / _sum(trial)
         moved = True
         accurate = accurate or size < _WARM_ACCURATE or size > 0.25 * previous
         previous = size

@@ -51,10 +51,10 @@ class Scratch:
             found = self._kept[name] = make()
         return found
 
-    def get(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
-        """An uninitialised float64 array of ``shape``, the same memory on every call with
-        ``name`` (whatever the previous caller left in it is overwritten)."""
-        size = math.prod(shape)
+    def get(self, name: str, shape: tuple[int, int]) -> np.ndarray:
+        """An uninitialised float64 array of ``shape`` (two dimensions), the same memory on
+        every call with ``name`` (whatever the previous caller left in it is overwritten)."""
+        size = shape[0] * shape[1]
         flat = self._flat.get(name)
         if flat is None or flat.size < size:
             flat = self._flat[name] = np.empty(size)
