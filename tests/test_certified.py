@@ -236,3 +236,93 @@ def test_float64_residual_bound_covers_its_rounding():
             exact = kkt_residual(problem, ev, marginal, columns=columns, extended=True)
             assert np.all(np.abs(residual - exact) <= bound)
             assert np.all(bound < 1e-12)
+
+
+def test_a_dominated_phenotype_leaves_exactly_and_the_policy_is_certified():
+    # Found by Hypothesis: phenotype 1 is never better than phenotype 0 and phenotype 3 never
+    # better than 2, so both leave at beta = 10 (their Kuhn–Tucker conditions fail; Blahut
+    # 1972). The steps before the finish left phenotype 1 a mass of 7e-26, which the Newton
+    # correction would have driven below zero, and the solve said "not-converged". The two
+    # remaining masses must be the two-phenotype Kuhn–Tucker root (mpmath, 40 digits).
+    payoff = np.array([[4.0, 1.0, 0.0, 0.0], [0.0, 0.0, 3.0, 0.0]])
+    env = np.array([0.5, 0.5])
+    policy = sl.solve(payoff, env, 10.0)
+    assert policy.status == "converged"
+    assert policy.marginal[1] == 0.0 and policy.marginal[3] == 0.0
+    root, exact = kuhn_tucker_root(payoff[:, [0, 2]], env, 10.0, 0, 1)
+    assert policy.marginal[2] == pytest.approx(root, rel=1e-10)
+    np.testing.assert_allclose(policy.probs[:, [0, 2]], exact, rtol=1e-8, atol=0)
+
+
+def test_a_mass_set_by_an_improbable_state_is_certified():
+    # Found by Hypothesis: a state of probability 3e-114 makes phenotype 1 worth a mass of
+    # 3e-114. Its curvature was lost to the cap on exp(beta u) / Z in the Newton system. With
+    # two states the Kuhn–Tucker condition sum_y p(y) d(y) / (1 + t d(y)) = 0 (Blahut 1972) is
+    # linear in t after clearing denominators: t = -(p0 d0 + p1 d1) / (d0 d1), evaluated
+    # with mpmath at 50 digits.
+    payoff = np.array([[1.0, 0.0], [0.0, 4.0]])
+    env = np.array([1.0, 3.25030671e-114])
+    env = env / env.sum()
+    policy = sl.solve(payoff, env, 66.0)
+    assert policy.status == "converged"
+    with mpmath.workdps(50):
+        d = [mpmath.expm1(66 * mpmath.mpf(g)) for g in payoff[:, 1] - payoff[:, 0]]
+        p0, p1 = (mpmath.mpf(x) for x in env)
+        t = -(p0 * d[0] + p1 * d[1]) / (d[0] * d[1])
+        exact = [float(t * (1 + x) / (1 + t * x)) for x in d]  # q(1 | y)
+    assert policy.marginal[1] == pytest.approx(float(t), rel=1e-10)
+    np.testing.assert_allclose(policy.probs[:, 1], exact, rtol=1e-8, atol=0)
+
+
+@pytest.mark.parametrize(
+    "payoff, env, beta, kept",
+    [
+        # Found by Hypothesis (thorough profile): dominated phenotypes next to a nearly
+        # singular Hessian (more phenotypes than states), which the finish left with masses of
+        # 1e-30 or the general steps could not leave at all.
+        ([[1.0, 0.0, 0.0, 0.0], [0.0, 3.0, 1.0, 0.0]], [0.5, 0.5], 39.0, (1, 0)),
+        ([[-1.0, 0.0, 0.5, -1.0, 1.0], [0.0, -1.0, -1.0, -1.0, -1.0]], [0.5, 0.5], 16.0, (4, 0)),
+    ],
+)
+def test_dominated_phenotypes_leave_next_to_a_singular_hessian(payoff, env, beta, kept):
+    # The optimum uses the two phenotypes in `kept` (star first); every other one is dominated
+    # (never better anywhere, so its Kuhn–Tucker condition fails; Blahut 1972). Masses against
+    # the two-phenotype Kuhn–Tucker root at 40 digits.
+    payoff, env = np.array(payoff), np.array(env)
+    policy = sl.solve(payoff, env, beta)
+    assert policy.status == "converged"
+    others = [x for x in range(payoff.shape[1]) if x not in kept]
+    assert (policy.marginal[others] == 0.0).all()
+    star, other = kept
+    root, exact = kuhn_tucker_root(payoff[:, [star, other]], env, beta, 0, 1)
+    assert policy.marginal[other] == pytest.approx(root, rel=1e-8)
+    np.testing.assert_allclose(policy.probs[:, [star, other]], exact, rtol=1e-8, atol=1e-300)
+
+
+def test_a_phenotype_needed_only_by_an_improbable_state_gets_its_closed_form_mass():
+    # Found by Hypothesis. Phenotype 0 is best in states A and C, phenotypes 1 and 2 share the
+    # best payoff in state B (probability 8.5e-150). Kuhn–Tucker conditions (Blahut 1972),
+    # worked by hand: with phenotype 2 alone beside 0, c(2) = p(C) + p(B) / r(2) = 1 gives
+    # r(2) = p(B) / p(A); then c(1) = p(A) + p(A) < 1, so phenotype 1 stays out (the other way
+    # round c(2) = 2 p(C) > 1 fails). Exponentials of -376 vanish against these masses.
+    payoff = np.array([[4.0, 4, 0], [4, 4, 4], [0, 4, 4], [4, 0, 4]])
+    env = np.array([4.8717948717948717e-001, 0.0, 8.5141187598154326e-150, 5.1282051282051277e-001])
+    policy = sl.solve(payoff, env, 94.0)
+    assert policy.status == "converged"
+    assert policy.marginal[1] == 0.0
+    assert policy.marginal[2] == pytest.approx(env[2] / env[0], rel=1e-10)
+
+
+def test_a_flat_objective_at_tiny_beta_keeps_both_tied_phenotypes():
+    # Found by Hypothesis. Phenotypes 0 and 1 tie on average and mirror each other across two
+    # equally likely states, phenotype 2 is dominated: by symmetry the optimum is (1/2, 1/2, 0)
+    # at every beta > 0 (Kuhn–Tucker: c(0) = c(1) = 1, c(2) = 2 / (1 + e^(beta/2)) < 1). At
+    # beta = 1e-8 the one-phenotype policy misses the optimum by only beta^2/8 = 1.25e-17 nats,
+    # inside the objective tolerance, but its masses are off by one half: the certificate must
+    # not accept it.
+    payoff = np.array([[0.0, -0.5, -0.5], [-0.5, 0.0, -0.5]])
+    env = np.array([0.5, 0.5])
+    for beta in [1e-8, 1e-4, 1.0]:
+        policy = sl.solve(payoff, env, beta)
+        assert policy.status == "converged"
+        np.testing.assert_allclose(policy.marginal, [0.5, 0.5, 0.0], rtol=1e-10, atol=0)

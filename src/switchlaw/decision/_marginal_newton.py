@@ -52,6 +52,9 @@ POLICY_RTOL = 1e-10
 NOISE_RTOL = 1e-9
 #: Newton corrections tried at most once the objective gap is below tolerance.
 _FINISH_STEPS = 12
+#: A phenotype in use with ``c(x)`` below this is taken out of use by the finish (with the gap
+#: below 1e-12 its mass is then below 1e-9; see :func:`finish`).
+_LEAVING = 1.0 - 1e-3
 
 
 @dataclass(frozen=True)
@@ -149,32 +152,41 @@ def _enter(problem: Reduced, r: np.ndarray, ev: Evaluation, x: int) -> np.ndarra
 
 
 def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
-    """``H(x, x') = sum_y p(y) ratio(y,x) ratio(y,x')`` (the Hessian of ``F`` in ``r``): one
-    temporary of the ratio's size and one matrix product."""
-    return ratio.T @ (ratio * problem.p[:, None])
+    """``sum_y p(y) (ratio(y,x) - 1) (ratio(y,x') - 1)``: the Hessian of ``F`` in ``r``,
+    ``sum_y p(y) ratio(y,x) ratio(y,x')``, up to terms ``a 1' + 1 a'`` that vanish on every
+    step that keeps ``sum r = 1``. Every step and quadratic model here is such a step, and
+    this form keeps the curvature along the simplex when it is tiny (small beta: the ratios
+    are ``1 + O(beta)`` and the plain form buries an ``O(beta^2)`` curvature under the
+    rounding of entries of order one)."""
+    centred = ratio - 1.0
+    return centred.T @ (centred * problem.p[:, None])
 
 
 def _support_newton_step(
     problem: Reduced, ratio: np.ndarray | None, r: np.ndarray, c: np.ndarray,
     hessian: np.ndarray | None = None, error: np.ndarray | None = None,
+    scaled: np.ndarray | None = None,
 ):
     """Newton step on a fixed support, keeping ``sum r = 1``, in scaled variables ``d = r y``.
 
     The scaled Hessian ``sum_y p(y) q(x|y) q(x'|y) = r(x) H(x,x') r(x')`` stays well conditioned
     when the marginal spans many orders of magnitude, so this is the accurate step once the
     support is settled. ``hessian`` is ``H`` on the support when the caller already has it
-    (then ``ratio`` is not read).
+    (then ``ratio`` is not read); ``scaled`` is the scaled Hessian itself (then neither is).
 
     With ``error`` (a bound on the rounding error of each entry of ``c``) it returns
     ``(step, rounding)``: ``rounding`` bounds the relative change of any mass that errors up to
     ``error`` in ``c`` can cause, ``|S^-1| (r error)`` with ``S`` the scaled system (its inverse
     comes from the same factorisation as the step).
     """
-    if hessian is None:
-        hessian = hessian_of(problem, ratio)
     k = r.size
     system = np.empty((k + 1, k + 1))
-    np.multiply(hessian, np.multiply.outer(r, r), out=system[:k, :k])
+    if scaled is not None:
+        system[:k, :k] = scaled
+    else:
+        if hessian is None:
+            hessian = hessian_of(problem, ratio)
+        np.multiply(hessian, np.multiply.outer(r, r), out=system[:k, :k])
     system[:k, k] = r
     system[k, :k] = r
     system[k, k] = 0.0
@@ -185,11 +197,27 @@ def _support_newton_step(
     else:
         rhs = np.eye(k + 1, k + 2, 1, order="F")
         np.multiply(r, c, out=rhs[:k, 0])
+    # A mass whose states are all improbable (p(y) = 1e-114) gives its row of the scaled
+    # system entries of that size beside entries of order one, and LU then loses the step:
+    # the system is equilibrated symmetrically by its diagonal first (Higham 2002, §7.3).
+    diagonal = system.diagonal()[:k]
+    scale = None
+    # (the same when the curvature is tiny beside the constraint's entries r: small beta)
+    smallest = _min(diagonal)
+    largest_mass = _max(r)
+    if not (smallest > 1e-8 * _max(diagonal) and smallest > 1e-8 * largest_mass * largest_mass):
+        scale = np.ones(k + 1)
+        positive = diagonal > 0
+        scale[:k][positive] = 1.0 / np.sqrt(np.maximum(diagonal[positive], 1e-280))
+        system *= np.multiply.outer(scale, scale)
+        rhs *= scale if rhs.ndim == 1 else scale[:, None]
     # LAPACK's gesv directly: numpy's solve wraps the same routine at five times the cost,
     # which dominates on small tables.
     solution, info = _gesv(system, rhs)[2:]
-    if info != 0 or not math.isfinite(solution.sum()):
+    if info != 0 or not np.isfinite(solution).all():
         solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
+    if scale is not None:
+        solution *= scale if solution.ndim == 1 else scale[:, None]
     if error is None:
         return r * solution[:k]
     step = r * solution[:k, 0]
@@ -221,7 +249,7 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     on_support = hessian[np.ix_(support, support)]
     if not (c[~support] > 1.0 + tol).any():
         step = _support_newton_step(problem, None, r[support], excess[support], on_support)
-        if (r[support] + step >= 0).all():
+        if _usable(step, r[support], excess[support]):
             direction = np.zeros(index.size)
             direction[support] = step
             return direction
@@ -229,12 +257,20 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     model[np.diag_indices_from(model)] += _RIDGE * np.trace(model) / index.size
     w = simplex_qp(model, -c - model @ r)
     if np.array_equal(w > 0, support):
-        direction = np.zeros(index.size)
-        direction[support] = _support_newton_step(
-            problem, None, r[support], excess[support], on_support
-        )
-        return direction
+        step = _support_newton_step(problem, None, r[support], excess[support], on_support)
+        if _usable(step, r[support], excess[support]):
+            direction = np.zeros(index.size)
+            direction[support] = step
+            return direction
     return w - r
+
+
+def _usable(step: np.ndarray, r: np.ndarray, excess: np.ndarray) -> bool:
+    """A Newton step on the support is taken only if it is finite, keeps every mass
+    non-negative and descends (``sum (c - 1) step > 0``). On a nearly singular Hessian (more
+    phenotypes in use than states that tell them apart) it can be none of these; the
+    minimiser of the model over the simplex is then the step."""
+    return bool(np.isfinite(step).all() and (r + step >= 0).all() and excess @ step > 0)
 
 
 #: Unit roundoff of float64.
@@ -353,13 +389,31 @@ def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended
     relative change of a mass that float64 rounding of the residual could cause (0 when the
     residual is in extended precision)."""
     support = index[r[index] > 0]
-    ratio = _capped_ratio(ev, support)
+    scaled = _scaled_hessian(problem, ev, r, support)
     if extended:
         residual = kkt_residual(problem, ev, r, extended=True, columns=support)
-        return support, _support_newton_step(problem, ratio, r[support], residual), 0.0
+        step = _support_newton_step(problem, None, r[support], residual, scaled=scaled)
+        return support, step, 0.0
     residual, error = kkt_residual(problem, ev, r, columns=support, bound=True)
-    step, rounding = _support_newton_step(problem, ratio, r[support], residual, error=error)
+    step, rounding = _support_newton_step(
+        problem, None, r[support], residual, error=error, scaled=scaled
+    )
     return support, step, rounding
+
+
+def _scaled_hessian(problem: Reduced, ev: Evaluation, r: np.ndarray, support: np.ndarray):
+    """``r(x) H(x,x') r(x') = sum_y p(y) (q(x|y) - r(x)) (q(x'|y) - r(x'))`` on the support
+    (the centred form of :func:`hessian_of`), from the policy ``q = r exp(beta gaps) / z``
+    itself (every entry in [0, 1], so nothing overflows and nothing needs capping, however
+    small a mass or a state probability)."""
+    q = ev.ratio[:, support] * r[support]
+    if ev.low.any():
+        with np.errstate(divide="ignore"):
+            q[ev.low] = np.exp(
+                problem.log_terms(r, ev.low)[:, support] - ev.log_z[ev.low, None]
+            )
+    q -= r[support]  # the centred form (see hessian_of)
+    return q.T @ (q * problem.p[:, None])
 
 
 def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarray:
@@ -368,19 +422,102 @@ def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarra
     return support[r[support] + step <= 0]
 
 
+#: Masses a Newton step would give to a phenotype out of use below this are not worth its
+#: entry (the objective gap already bounds what they change).
+_DUST = 1e-12
+
+
+def _entering(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray):
+    """The marginal with the phenotypes out of use whose ``c(x) > 1`` given the masses of one
+    Newton step on the support with them (unscaled variables, centred Hessian), when one of
+    those masses exceeds :data:`_DUST`; else ``None``."""
+    # c(x) itself rounds 1 + 1e-17 to one: candidates near one are judged by the accurate
+    # residual
+    out = index[(r[index] == 0) & (ev.c[index] > 1.0 - 1e-8)]
+    if not out.size:
+        return None
+    support = index[r[index] > 0]
+    out = out[kkt_residual(problem, ev, r, columns=np.concatenate([support, out]))[support.size :] > 0]
+    if not out.size:
+        return None
+    columns = np.concatenate([support, out])
+    hessian = hessian_of(problem, _capped_ratio(ev, columns))
+    residual = kkt_residual(problem, ev, r, columns=columns)
+    k = columns.size
+    system = np.zeros((k + 1, k + 1))
+    system[:k, :k] = hessian
+    system[:k, k] = 1.0
+    system[k, :k] = 1.0
+    rhs = np.zeros(k + 1)
+    rhs[:k] = residual
+    # equilibrated by the diagonal: the curvature can be 1e-17 beside constraints of one
+    diagonal = hessian.diagonal()
+    scale = np.ones(k + 1)
+    positive = diagonal > 0
+    scale[:k][positive] = 1.0 / np.sqrt(np.maximum(diagonal[positive], 1e-280))
+    try:
+        step = scale * np.linalg.solve(system * np.multiply.outer(scale, scale), rhs * scale)
+    except np.linalg.LinAlgError:
+        return None
+    step = step[:k]
+    gained = step[support.size :]
+    if not (np.isfinite(step).all() and gained.max() > _DUST):
+        return None
+    trial = r.copy()
+    trial[columns] = np.maximum(r[columns] + step, 0.0)
+    if not (trial[support] > 0).all():  # a larger change: leave it to the steps that follow
+        trial[support] = r[support]
+        trial[out] = np.maximum(step[support.size :], 0.0)
+    return trial / trial.sum()
+
+
+def _rescaled(problem: Reduced, r: np.ndarray, x: int) -> np.ndarray | None:
+    """The marginal with phenotype ``x``'s mass ``s`` at the exact minimum of ``F`` along
+    ``s e_x + (1 - s) r_others`` (the other masses keep their proportions): the root of
+    ``sum_y p(y) (e(y,x) - z'(y)) / (s e(y,x) + (1 - s) z'(y))``, a decreasing function of
+    ``s`` (``F`` is convex), by Brent's method to full relative precision (``s = 0`` when the
+    slope is negative already at 1e-300); ``None`` when it is not negative at ``r(x)``, or
+    where a row has neither ``e(y,x)`` nor ``z'(y)`` above zero (log domain)."""
+    others = r.copy()
+    others[x] = 0.0
+    rest = others.sum()
+    if not rest > 0:
+        return None
+    z_rest = problem.expo @ (others / rest)
+    e = problem.expo[:, x]
+    if ((e == 0) & (z_rest == 0)).any():
+        return None  # a row in log domain for both: left to the general method
+    p = problem.p
+
+    def slope(share: float) -> float:
+        with np.errstate(divide="ignore", over="ignore"):
+            return float(p @ ((e - z_rest) / (share * e + (1.0 - share) * z_rest)))
+
+    low, high = 1e-300, float(r[x])
+    if not (high > low and slope(high) < 0):
+        return None
+    if slope(low) <= 0:
+        share = 0.0  # the optimum along this line has x out of use
+    else:
+        share = brentq(slope, low, high, xtol=1e-300, rtol=4 * np.finfo(float).eps, maxiter=2000)
+    out = others / rest * (1.0 - share)
+    out[x] = share
+    return out
+
+
 def _finish_step(
     problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, extended: bool
 ):
     """Newton correction on the support with the accurate residual.
 
-    Returns ``(new r, relative size of the correction, relative rounding bound)``, or
-    ``None`` when the correction would drive a phenotype in use to zero or below (the support
-    is not settled to the policy tolerance; phenotypes outside already have
-    ``c(x) <= e^tol`` from the gap test).
+    Returns ``(new r, relative size of the correction, relative rounding bound)``;
+    ``new r`` is ``None`` when the correction would drive a phenotype in use to zero or
+    below (the support is not settled to the policy tolerance; phenotypes outside already
+    have ``c(x) <= e^tol`` from the gap test).
     """
     support, step, rounding = _correction(problem, ev, r, index, extended)
     if not np.isfinite(step).all() or (r[support] + step <= 0).any():
-        return None
+        return None, np.inf, rounding
     trial = r.copy()
     trial[support] += step
     size = float(np.max(np.abs(step) / r[support]))
@@ -408,10 +545,48 @@ def finish(
     extended = False
     size = np.inf
     for _ in range(_FINISH_STEPS):
-        finish = _finish_step(problem, ev, r, index, extended)
-        if finish is None:
-            return r, ev, gap, np.inf, False
-        trial, size, rounding = finish
+        # A phenotype out of use with c(x) > 1 (within the gap) enters if the Newton step
+        # with it gives it a mass above _DUST: on a flat objective (small beta, or just past
+        # a transition) a residual of 1e-17 can stand for a mass of one half.
+        entering = _entering(problem, ev, r, index)
+        if entering is not None:
+            entering_ev = evaluate(problem, entering)
+            entering_gap = _gap(entering_ev.c, allowed)
+            if entering_gap > tol:  # the step was outside the model's reach: not certified
+                return r, ev, gap, np.inf, False
+            r, ev, gap, previous = entering, entering_ev, entering_gap, np.inf
+            continue
+        # A phenotype in use has c(x) = 1 at the optimum. With the gap below tol, one with
+        # c(x) < _LEAVING holds a mass below tol / (1 - _LEAVING) (since sum_x r c = 1): it
+        # is taken as a zero the steps before did not reach and leaves exactly, if the gap
+        # over every phenotype stays below tol without it. Then its exact mass is below about
+        # tol as well (dropping it raises its own c(x) by about its mass times
+        # H(x,x) >= c(x)^2), so a mass reported as zero is below 1e-12 at the optimum.
+        leaving = index[(r[index] > 0) & (ev.c[index] < _LEAVING)]
+        if leaving.size and leaving.size < (r > 0).sum():
+            dropped = r.copy()
+            dropped[leaving] = 0.0
+            dropped /= dropped.sum()
+            dropped_ev = evaluate(problem, dropped)
+            dropped_gap = _gap(dropped_ev.c, allowed)
+            if dropped_gap <= tol:
+                r, ev, gap, previous = dropped, dropped_ev, dropped_gap, np.inf
+                continue
+        trial, size, rounding = _finish_step(problem, ev, r, index, extended)
+        if trial is None:
+            # The correction would empty a phenotype in use that belongs (dropping it fails
+            # the gap test): its mass is orders of magnitude too large for Newton's steps.
+            # It is set by the exact one-dimensional optimum along its own direction.
+            gone = emptied(problem, ev, r, index)
+            rescaled = _rescaled(problem, r, int(gone[0])) if gone.size else None
+            if rescaled is None:
+                return r, ev, gap, np.inf, False
+            rescaled_ev = evaluate(problem, rescaled)
+            rescaled_gap = _gap(rescaled_ev.c, allowed)
+            if rescaled_gap > tol:
+                return r, ev, gap, np.inf, False
+            r, ev, gap, previous = rescaled, rescaled_ev, rescaled_gap, np.inf
+            continue
         if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:
             extended, previous = True, np.inf
             continue
@@ -452,32 +627,27 @@ _CHORD = 1e-5
 _sum, _min, _max = np.add.reduce, np.minimum.reduce, np.maximum.reduce
 
 
-def _accurate_residual(expo, m1_t, p, r, z, scratch: Scratch):
+def _accurate_residual(expo, m1_t, p, r, z, scratch: Scratch, support=None):
     """``c(x) - 1`` on the columns of ``expo`` without cancellation, and its rounding bound:
     the float64 branch of :func:`kkt_residual` with ``bound=True``, element for element, with
     ``m1_t = expm1(beta gaps).T`` (phenotypes x states, C order) on the same columns and
     ``z = expo @ r`` given (every row in linear domain). Temporaries live in ``scratch``; the
-    terms are formed phenotype by phenotype, so their sums over states are pairwise."""
+    terms are formed phenotype by phenotype, so their sums over states are pairwise.
+    ``support``: the columns of ``expo`` that ``m1_t`` and ``r`` describe (default: all)."""
     total = _sum(r)
     w = p / z
     m1_r = r @ m1_t
     numerator = np.multiply(m1_t, total, out=scratch.get("numerator", m1_t.shape))
     numerator -= m1_r
-    far = z < 0.5
-    if far.any():
-        # S e - z there: the same value as S expm1 - expm1 @ r, without losing e to rounding
-        far = np.flatnonzero(far)
-        expo_far = expo[far].T
+    # |S expm1 - expm1 @ r| <= -S expm1 - expm1 @ r (every expm1 <= 0)
+    magnitude = -(m1_t @ w) * total - w @ m1_r
+    far = (z < 0.5).nonzero()[0]
+    if far.size:
+        # S e - z there: the same value as S expm1 - expm1 @ r, without losing e to rounding;
+        # |S e - z| <= S e + z <= 2 S - S expm1 - expm1 @ r, so the bound above needs 2 S w
+        expo_far = expo[far].T if support is None else expo[far][:, support].T
         numerator[:, far] = total * expo_far - z[far]
-        w_far = np.zeros_like(w)
-        w_far[far] = w[far]
-        w_near = w - w_far
-        magnitude = (
-            -(m1_t @ w_near) * total - w_near @ m1_r + (expo_far @ w[far]) * total
-            + w[far] @ z[far]
-        )
-    else:
-        magnitude = -(m1_t @ w) * total - w @ m1_r
+        magnitude += 2.0 * total * _sum(w[far])
     numerator *= w
     return numerator.sum(axis=1), _rounding_factor(p.size, r.size) * magnitude
 
@@ -511,15 +681,19 @@ def warm_newton(
     unused = (allowed & ~used).nonzero()[0]
     expo, p, scratch = problem.expo, problem.p, problem.scratch
     m = p.size
-    if k == n:
+    # With most phenotypes in use the products run over every column (their marginal
+    # entries zero), which costs less than copying the support's columns out of the table.
+    wide = 2 * k >= n and k < n  # (with every phenotype in use the columns are the table)
+    if wide or k == n:
         columns = expo
     else:
         columns = np.take(expo, support, axis=1, out=scratch.get("columns", (m, k)))
-    others = expo[:, unused] if unused.size else None
+    others = None if wide or not unused.size else expo[:, unused]
     root_p = scratch.kept("root_p", lambda: np.sqrt(p))
-    scaled = scratch.get("scaled", (m, k))
+    scaled = scratch.get("scaled", (m, columns.shape[1]))
     r = start[support]
     r = r / _sum(r)
+    padded = np.zeros(n) if wide else None
     m1 = None
     hessian = None
     accurate = False
@@ -535,12 +709,21 @@ def warm_newton(
         return (full(r) if moved else None), steps
 
     for steps in range(_WARM_STEPS):
-        z = columns @ r
+        if wide:
+            padded[support] = r
+            z = columns @ padded
+        else:
+            z = columns @ r
         if not _min(z) >= _WARM_Z_FLOOR:
             return handover(steps)
         w = p / z
-        c = w @ columns
-        outside = None if others is None else w @ others
+        if wide:
+            every = w @ columns
+            c = every[support]
+            outside = every[unused] if unused.size else None
+        else:
+            c = w @ columns
+            outside = None if others is None else w @ others
         if outside is not None and _max(outside) > _FAR:
             return handover(steps)  # a phenotype far outside wants in: the support changes
         if accurate:
@@ -550,12 +733,18 @@ def warm_newton(
                 )
                 m1 *= problem.beta
                 np.expm1(m1, out=m1)
-            residual, error = _accurate_residual(columns, m1, p, r, z, scratch)
+            residual, error = _accurate_residual(
+                columns, m1, p, r, z, scratch, support if wide else None
+            )
         else:
             residual = c - 1.0
         if hessian is None or previous > _CHORD:
+            # sqrt(p) (e / z - 1): the centred form of hessian_of
             np.multiply(columns, (root_p / z)[:, None], out=scaled)
+            scaled -= root_p[:, None]
             hessian = scaled.T @ scaled
+            if wide and k < n:
+                hessian = hessian[support][:, support]
         if accurate:
             step, rounding = _support_newton_step(problem, None, r, residual, hessian, error)
             if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:
@@ -568,8 +757,36 @@ def warm_newton(
         if not (_min(trial) > 0 and size < np.inf):
             return handover(steps)
         if accurate:
-            if outside is not None and _gap(outside, slice(None)) > tol:
-                return handover(steps)  # settled on the support, but another phenotype wants in
+            if outside is not None and _max(outside) > 1.0:
+                # settled on the support, but another phenotype's Kuhn–Tucker condition
+                # fails (however slightly): the finish decides whether it enters
+                return handover(steps)
+            if size <= POLICY_RTOL:
+                # The corrected marginal, if its own gap is certified: Newton's step leaves
+                # an error of the order of the correction squared, so it is the better of
+                # the two, and costs two products to check instead of another step.
+                corrected = trial / _sum(trial)
+                if wide:
+                    padded[support] = corrected
+                    z = columns @ padded
+                else:
+                    z = columns @ corrected
+                if _min(z) >= _WARM_Z_FLOOR:
+                    w = p / z
+                    every = w @ columns
+                    c_new = every[support] if wide else every
+                    outside_new = (
+                        every[unused] if wide and unused.size
+                        else None if others is None else w @ others
+                    )
+                    top = float(_max(c_new))
+                    gap = math.log(top) if top > 1.0 else 0.0
+                    if gap <= tol and (outside_new is None or _max(outside_new) <= 1.0):
+                        return MarginalResult(
+                            full(corrected), gap, steps + 1, True,
+                            "certified gap below tolerance; Newton correction "
+                            f"{size:.2g} relative (applied)",
+                        ), steps + 1
             top = float(_max(c))
             gap = math.log(top) if top > 1.0 else 0.0
             if (size <= POLICY_RTOL or not policy and size > 0.25 * previous) and gap <= tol:

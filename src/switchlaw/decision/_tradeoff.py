@@ -82,6 +82,43 @@ class _Locator:
             seen[beta] = (value, record.marginal)
         return value
 
+    def one_change(
+        self, beta: float, root: float, smaller: frozenset, x: int, seen: dict, x_in: bool
+    ) -> bool:
+        """Whether the optimal support at ``beta`` (between ``root`` and ``beta``, see below)
+        is ``smaller`` plus ``x`` (``x_in``) or ``smaller`` alone, judged from the optimum over ``smaller`` (warm-started from the
+        nearest beta of the search) by the Kuhn–Tucker conditions with strict margins: every
+        mass of ``smaller`` in use, ``c_j < 1`` for every other phenotype, and ``c_x > 1``
+        exactly when ``x_in``. With strict margins a small entering mass of ``x`` moves none
+        of them across, so the support there is the one claimed (convexity: the conditions
+        are sufficient; Blahut 1972)."""
+        allowed = np.zeros(self.n, dtype=bool)
+        allowed[list(smaller)] = True
+        # Brent's method left solutions on that side of the root, closer to it than beta is:
+        # the farthest of them serves as well as a new solve at beta (a subinterval of the same
+        # window), and costs no solve.
+        reach = abs(beta - root)
+        window = [b for b in seen if (b - root) * (beta - root) > 0 and abs(b - root) <= reach]
+        if window:
+            beta = max(window, key=lambda b: abs(b - root))
+            marginal = seen[beta][1]
+        else:
+            start = seen[min(seen, key=lambda b: abs(b - beta))][1]
+            record = solve_marginal(
+                self.payoff, self.env, beta, start=start, allowed=allowed, gaps=self.gaps,
+                policy=False,
+            )
+            if not record.converged:
+                return False
+            marginal = record.marginal
+        if not (marginal[allowed] > SUPPORT_FLOOR).all():
+            return False
+        with np.errstate(divide="ignore"):
+            log_c = np.log(evaluate(self.gaps.at(beta), marginal).c)
+        others = ~allowed
+        others[x] = False
+        return bool((log_c[others] < 0).all() and (log_c[x] > 0) == x_in and log_c[x] != 0)
+
     def between(self, lo: float, r_lo: np.ndarray, hi: float, r_hi: np.ndarray) -> list:
         s_lo, s_hi = _support(r_lo), _support(r_hi)
         if s_lo == s_hi:
@@ -102,12 +139,14 @@ class _Locator:
                         self.kkt_excess, a, hi, args=(smaller, x, start, seen),
                         xtol=1e-300, rtol=BETA_RTOL,
                     )
-                    # Trust the root only if it is the single change in the interval: the
-                    # full solutions just either side must have the two end supports.
+                    # Trust the root only if it is the single change in the interval: just
+                    # either side, the supports must be the two end supports.
                     step = 1e-7 * beta
-                    if (
-                        _support(self.full(max(beta - step, lo), r_lo)) == s_lo
-                        and _support(self.full(min(beta + step, hi), r_hi)) == s_hi
+                    entering = s_lo == smaller
+                    if self.one_change(
+                        max(beta - step, lo), beta, smaller, x, seen, x_in=not entering
+                    ) and self.one_change(
+                        min(beta + step, hi), beta, smaller, x, seen, x_in=entering
                     ):
                         return [self._record(beta, s_lo, s_hi)]
             except (ValueError, FloatingPointError):
