@@ -615,7 +615,7 @@ _WARM_STEPS = 10
 _WARM_Z_FLOOR = 1.0 / _RATIO_CAP
 #: Steps smaller than this (relative), or no longer shrinking, are followed by steps with the
 #: accurate residual (the next step of Newton's method then reaches the certified size).
-_WARM_ACCURATE = 1e-6
+_WARM_ACCURATE = 1e-3
 #: After a step smaller than this (relative), the next step keeps the Hessian of the step
 #: before (a chord step): it differs by about the step's size, which then scales the next
 #: correction by ``1 + O(1e-5)`` and leaves its use as a certificate intact.
@@ -739,11 +739,17 @@ def warm_newton(
         else:
             residual = c - 1.0
         if hessian is None or previous > _CHORD:
-            # sqrt(p) (e / z - 1): the centred form of hessian_of
             np.multiply(columns, (root_p / z)[:, None], out=scaled)
-            scaled -= root_p[:, None]
-            hessian = scaled.T @ scaled
-            if wide and k < n:
+            plain = scaled.T @ scaled
+            # The centred form of hessian_of, H - c 1' - 1 c' + 1 1' (sum p = 1), from the
+            # plain one; where that cancels to fewer than six digits (small beta) it is
+            # formed from sqrt(p) (e / z - 1) itself.
+            c_columns = every if wide else c
+            hessian = plain - c_columns[:, None] - c_columns[None, :] + 1.0
+            if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
+                scaled -= root_p[:, None]
+                hessian = scaled.T @ scaled
+            if wide:
                 hessian = hessian[support][:, support]
         if accurate:
             step, rounding = _support_newton_step(problem, None, r, residual, hessian, error)
