@@ -354,12 +354,9 @@ def _newton_stack(u_seen, p, betas, start, allowed, tol):
     return done, r, steps
 
 
-def _scaled_steps(hessian, r, residual, support):
-    """The step of ``_support_newton_step`` for every problem, phenotypes out of use masked.
-
-    ``[r_i H_ij r_j, r_i; r_j, 0] [y; mu] = [r_i residual_i; 0]``, ``d = r y``; a phenotype
-    out of use has ``r = 0``, so its row and column vanish and the identity is put there.
-    """
+def _scaled_systems(hessian, r, support):
+    """``[r_i H_ij r_j, r_i; r_j, 0]`` for every problem, the identity on phenotypes out of
+    use (their rows and columns vanish with ``r = 0``)."""
     k, n = r.shape
     system = np.zeros((k, n + 1, n + 1))
     system[:, :n, :n] = r[:, :, None] * hessian * r[:, None, :]
@@ -367,6 +364,17 @@ def _scaled_steps(hessian, r, residual, support):
     system[:, diagonal, diagonal] += ~support
     system[:, :n, n] = r
     system[:, n, :n] = r
+    return system
+
+
+def _scaled_steps(hessian, r, residual, support):
+    """The step of ``_support_newton_step`` for every problem, phenotypes out of use masked.
+
+    ``[r_i H_ij r_j, r_i; r_j, 0] [y; mu] = [r_i residual_i; 0]``, ``d = r y``; a phenotype
+    out of use has ``r = 0``, so its row and column vanish and the identity is put there.
+    """
+    k, n = r.shape
+    system = _scaled_systems(hessian, r, support)
     rhs = np.zeros((k, n + 1))
     rhs[:, :n] = np.where(support, r * residual, 0.0)
     ok = np.ones(k, dtype=bool)
@@ -434,12 +442,7 @@ def _rounding(hessian, r, support, bound):
     up to ``bound`` can cause in the Newton step (``|S^-1| (r bound)``, ``S`` the scaled
     system of :func:`_scaled_steps`)."""
     k, n = r.shape
-    system = np.zeros((k, n + 1, n + 1))
-    system[:, :n, :n] = r[:, :, None] * hessian * r[:, None, :]
-    diagonal = np.arange(n)
-    system[:, diagonal, diagonal] += ~support
-    system[:, :n, n] = r
-    system[:, n, :n] = r
+    system = _scaled_systems(hessian, r, support)
     try:
         inverse = np.linalg.inv(system)
     except np.linalg.LinAlgError:

@@ -282,21 +282,6 @@ _UNIT = np.finfo(float).eps / 2
 _ROUNDING_SHARE = 1.0
 
 
-def _summed(terms: np.ndarray, scratch: Scratch | None = None) -> np.ndarray:
-    """Column sums of ``terms`` (states x phenotypes) by numpy's pairwise summation.
-
-    A reduction over the first axis of a C-ordered array adds the rows one after another
-    (error growing with the number of states); summing each column contiguously is pairwise,
-    with error at most ``(log2(states) + 16)`` units of roundoff times the sum of absolute
-    values (Higham 2002, §4.2; numpy sums blocks of 128 with eight accumulators).
-    """
-    if scratch is None:
-        return np.ascontiguousarray(terms.T).sum(axis=1)
-    transposed = scratch.get("transposed", terms.shape[::-1])
-    np.copyto(transposed, terms.T)
-    return transposed.sum(axis=1)
-
-
 def _rounding_factor(states: int, phenotypes: int) -> float:
     """Units of roundoff in the float64 residual's error bound: ``phenotypes + 5`` for
     forming each term (a dot product over the phenotypes, ``expm1``, a product, a difference
