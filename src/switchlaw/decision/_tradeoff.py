@@ -301,14 +301,32 @@ class _Table:
             ratio = expo / z[..., None]  # q / r
             del expo
             q = ratio * r[:, None, :]
-            # phi(q / r - 1) weighted by r: zero for phenotypes not in use
-            information = (excess_of_log(ratio - 1.0) @ r[:, :, None])[..., 0] @ self.p
+            # I = sum_y p(y) (beta sum_x q g - log z) and H(X|Y) = -sum_x f log r - I, one
+            # logarithm per state; trusted where the terms cancel by less than six digits
+            # (rounding then moves them by less than 1e-10 relative), else the elementwise
+            # forms below, accurate to the last digit however small I or H(X|Y) is.
+            with np.errstate(divide="ignore"):
+                log_z = np.log(z)
+            gain = b[:, None] * (q * self.gaps).sum(axis=2)
+            information = (gain - log_z) @ self.p
+            scale_i = (np.abs(gain) + np.abs(log_z)) @ self.p
+            marginal = self.p @ q
+            cross = -(marginal * np.log(np.where(r > 0, r, 1.0))).sum(axis=1)
+            entropy = cross - information
+            trusted = (information > 1e-6 * scale_i) & (entropy > 1e-6 * (np.abs(cross) + scale_i))
+            careful = np.flatnonzero(~trusted)
+            if careful.size:
+                # phi(q / r - 1) weighted by r: zero for phenotypes not in use
+                information[careful] = (
+                    excess_of_log(ratio[careful] - 1.0) @ r[careful, :, None]
+                )[..., 0] @ self.p
+                entropy[careful] = entr(q[careful]).sum(axis=2) @ self.p
             del ratio
             chunk = out[lo : lo + size]
             chunk[:, 0] = np.maximum(information, 0.0) / NATS_PER_BIT
-            chunk[:, 1] = entr(q).sum(axis=2) @ self.p / NATS_PER_BIT
+            chunk[:, 1] = entropy / NATS_PER_BIT
             chunk[:, 2] = self.star_mean + (q * self.to_star).sum(axis=2) @ self.p
-            fractions[lo : lo + size] = self.p @ q
+            fractions[lo : lo + size] = marginal
             chunk[bad] = np.nan
             failed[lo : lo + size] = bad
         return out, fractions, failed
