@@ -557,6 +557,11 @@ def finish(
             if dropped_gap <= tol:
                 r, ev, gap, previous = dropped, dropped_ev, dropped_gap, np.inf
                 continue
+        if (r[index] > 0).sum() - 1 > problem.p.size:
+            # More phenotypes in use than states: the Hessian is singular along the simplex
+            # (rank at most the number of states), so no Newton correction measures the
+            # distance to the optimum; nothing is certified.
+            return r, ev, gap, np.nan, False
         trial, size, rounding = _finish_step(problem, ev, r, index, extended)
         if trial is None:
             # The correction would empty a phenotype in use that belongs (dropping it fails
@@ -661,8 +666,8 @@ def warm_newton(
     used = allowed & (start > 0)
     support = used.nonzero()[0]
     k = support.size
-    if k < 2:
-        return None, 0
+    if k < 2 or k - 1 > problem.p.size:
+        return None, 0  # (more phenotypes in use than states: see finish)
     unused = (allowed & ~used).nonzero()[0]
     expo, p, scratch = problem.expo, problem.p, problem.scratch
     m = p.size
@@ -846,6 +851,8 @@ def newton_marginal(
             why = (
                 f"the policy is resolved only to {size:.2g} relative"
                 if np.isfinite(size)
+                else "more phenotypes in use than states (a singular Hessian)"
+                if np.isnan(size)
                 else "a Newton correction would empty a phenotype in use"
             )
             return MarginalResult(
