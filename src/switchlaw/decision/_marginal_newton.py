@@ -558,9 +558,10 @@ def finish(
                 r, ev, gap, previous = dropped, dropped_ev, dropped_gap, np.inf
                 continue
         if (r[index] > 0).sum() - 1 > problem.p.size:
-            # More phenotypes in use than states: the Hessian is singular along the simplex
-            # (rank at most the number of states), so no Newton correction measures the
-            # distance to the optimum; nothing is certified.
+            # More phenotypes in use than states plus one: the Hessian (rank at most the
+            # number of states) is singular along the simplex (dimension one less than the
+            # phenotypes in use), so no Newton correction measures the distance to the
+            # optimum; nothing is certified.
             return r, ev, gap, np.nan, False
         trial, size, rounding = _finish_step(problem, ev, r, index, extended)
         if trial is None:
@@ -667,7 +668,7 @@ def warm_newton(
     support = used.nonzero()[0]
     k = support.size
     if k < 2 or k - 1 > problem.p.size:
-        return None, 0  # (more phenotypes in use than states: see finish)
+        return None, 0  # (more phenotypes in use than states plus one: see finish)
     unused = (allowed & ~used).nonzero()[0]
     expo, p, scratch = problem.expo, problem.p, problem.scratch
     m = p.size
@@ -851,7 +852,7 @@ def newton_marginal(
             why = (
                 f"the policy is resolved only to {size:.2g} relative"
                 if np.isfinite(size)
-                else "more phenotypes in use than states (a singular Hessian)"
+                else "more phenotypes in use than states plus one (a singular Hessian)"
                 if np.isnan(size)
                 else "a Newton correction would empty a phenotype in use"
             )
