@@ -162,17 +162,53 @@ def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
     return centred.T @ (centred * problem.p[:, None])
 
 
+def _bordered_solve(
+    system: np.ndarray, rhs: np.ndarray, border: float, *, always: bool = False,
+    fallback: bool = True,
+) -> np.ndarray | None:
+    """Solve ``[A b; b' 0] x = rhs`` (``A`` the leading ``k x k`` block of ``system``, ``b``
+    its border, largest entry ``border``), in place of ``system`` and ``rhs``.
+
+    Where the diagonal of ``A`` spans many orders of magnitude (a mass whose states are all
+    improbable gives its row entries of 1e-114 beside entries of order one) or is tiny beside
+    the border (small beta), LU loses the solution: the system is then equilibrated
+    symmetrically by that diagonal first (Higham 2002, §7.3); ``always`` does so in any case.
+    LAPACK's ``gesv`` directly (numpy's solve wraps it at five times the cost, which dominates
+    on small tables); a failed or non-finite solve is redone by least squares, or gives
+    ``None`` without ``fallback``.
+    """
+    k = system.shape[0] - 1
+    diagonal = system.diagonal()[:k]
+    scale = None
+    smallest = _min(diagonal)
+    if always or not (
+        smallest > 1e-8 * _max(diagonal) and smallest > 1e-8 * border * border
+    ):
+        scale = np.ones(k + 1)
+        positive = diagonal > 0
+        scale[:k][positive] = 1.0 / np.sqrt(np.maximum(diagonal[positive], 1e-280))
+        system *= np.multiply.outer(scale, scale)
+        rhs *= scale if rhs.ndim == 1 else scale[:, None]
+    solution, info = _gesv(system, rhs)[2:]
+    if info != 0 or not np.isfinite(solution).all():
+        if not fallback:
+            return None
+        solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
+    if scale is not None:
+        solution *= scale if solution.ndim == 1 else scale[:, None]
+    return solution
+
+
 def _support_newton_step(
-    problem: Reduced, ratio: np.ndarray | None, r: np.ndarray, c: np.ndarray,
-    hessian: np.ndarray | None = None, error: np.ndarray | None = None,
-    scaled: np.ndarray | None = None,
+    r: np.ndarray, c: np.ndarray, hessian: np.ndarray | None = None,
+    error: np.ndarray | None = None, scaled: np.ndarray | None = None,
 ):
     """Newton step on a fixed support, keeping ``sum r = 1``, in scaled variables ``d = r y``.
 
     The scaled Hessian ``sum_y p(y) q(x|y) q(x'|y) = r(x) H(x,x') r(x')`` stays well conditioned
     when the marginal spans many orders of magnitude, so this is the accurate step once the
-    support is settled. ``hessian`` is ``H`` on the support when the caller already has it
-    (then ``ratio`` is not read); ``scaled`` is the scaled Hessian itself (then neither is).
+    support is settled. ``hessian`` is ``H`` on the support; ``scaled`` is the scaled Hessian
+    itself (then ``hessian`` is not read).
 
     With ``error`` (a bound on the rounding error of each entry of ``c``) it returns
     ``(step, rounding)``: ``rounding`` bounds the relative change of any mass that errors up to
@@ -184,8 +220,6 @@ def _support_newton_step(
     if scaled is not None:
         system[:k, :k] = scaled
     else:
-        if hessian is None:
-            hessian = hessian_of(problem, ratio)
         np.multiply(hessian, np.multiply.outer(r, r), out=system[:k, :k])
     system[:k, k] = r
     system[k, :k] = r
@@ -197,27 +231,7 @@ def _support_newton_step(
     else:
         rhs = np.eye(k + 1, k + 2, 1, order="F")
         np.multiply(r, c, out=rhs[:k, 0])
-    # A mass whose states are all improbable (p(y) = 1e-114) gives its row of the scaled
-    # system entries of that size beside entries of order one, and LU then loses the step:
-    # the system is equilibrated symmetrically by its diagonal first (Higham 2002, §7.3).
-    diagonal = system.diagonal()[:k]
-    scale = None
-    # (the same when the curvature is tiny beside the constraint's entries r: small beta)
-    smallest = _min(diagonal)
-    largest_mass = _max(r)
-    if not (smallest > 1e-8 * _max(diagonal) and smallest > 1e-8 * largest_mass * largest_mass):
-        scale = np.ones(k + 1)
-        positive = diagonal > 0
-        scale[:k][positive] = 1.0 / np.sqrt(np.maximum(diagonal[positive], 1e-280))
-        system *= np.multiply.outer(scale, scale)
-        rhs *= scale if rhs.ndim == 1 else scale[:, None]
-    # LAPACK's gesv directly: numpy's solve wraps the same routine at five times the cost,
-    # which dominates on small tables.
-    solution, info = _gesv(system, rhs)[2:]
-    if info != 0 or not np.isfinite(solution).all():
-        solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
-    if scale is not None:
-        solution *= scale if solution.ndim == 1 else scale[:, None]
+    solution = _bordered_solve(system, rhs, _max(r))
     if error is None:
         return r * solution[:k]
     step = r * solution[:k, 0]
@@ -248,7 +262,7 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     excess = c - 1.0
     on_support = hessian[np.ix_(support, support)]
     if not (c[~support] > 1.0 + tol).any():
-        step = _support_newton_step(problem, None, r[support], excess[support], on_support)
+        step = _support_newton_step(r[support], excess[support], on_support)
         if _usable(step, r[support], excess[support]):
             direction = np.zeros(index.size)
             direction[support] = step
@@ -257,7 +271,7 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     model[np.diag_indices_from(model)] += _RIDGE * np.trace(model) / index.size
     w = simplex_qp(model, -c - model @ r)
     if np.array_equal(w > 0, support):
-        step = _support_newton_step(problem, None, r[support], excess[support], on_support)
+        step = _support_newton_step(r[support], excess[support], on_support)
         if _usable(step, r[support], excess[support]):
             direction = np.zeros(index.size)
             direction[support] = step
@@ -275,11 +289,6 @@ def _usable(step: np.ndarray, r: np.ndarray, excess: np.ndarray) -> bool:
 
 #: Unit roundoff of float64.
 _UNIT = np.finfo(float).eps / 2
-#: A float64 residual is used for a certificate only if its rounding can move no mass in use by
-#: more than this fraction of :data:`POLICY_RTOL` (a worst-case bound, so the masses are then
-#: within the correction plus at most that much); otherwise the residual is recomputed in
-#: extended precision.
-_ROUNDING_SHARE = 1.0
 
 
 def _rounding_factor(states: int, phenotypes: int) -> float:
@@ -377,12 +386,10 @@ def _correction(problem: Reduced, ev: Evaluation, r: np.ndarray, index, extended
     scaled = _scaled_hessian(problem, ev, r, support)
     if extended:
         residual = kkt_residual(problem, ev, r, extended=True, columns=support)
-        step = _support_newton_step(problem, None, r[support], residual, scaled=scaled)
+        step = _support_newton_step(r[support], residual, scaled=scaled)
         return support, step, 0.0
     residual, error = kkt_residual(problem, ev, r, columns=support, bound=True)
-    step, rounding = _support_newton_step(
-        problem, None, r[support], residual, error=error, scaled=scaled
-    )
+    step, rounding = _support_newton_step(r[support], residual, error=error, scaled=scaled)
     return support, step, rounding
 
 
@@ -422,12 +429,14 @@ def _entering(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray
     if not out.size:
         return None
     support = index[r[index] > 0]
-    out = out[kkt_residual(problem, ev, r, columns=np.concatenate([support, out]))[support.size :] > 0]
-    if not out.size:
+    residual = kkt_residual(problem, ev, r, columns=np.concatenate([support, out]))
+    wanted = residual[support.size :] > 0
+    if not wanted.any():
         return None
+    out = out[wanted]
+    residual = np.concatenate([residual[: support.size], residual[support.size :][wanted]])
     columns = np.concatenate([support, out])
     hessian = hessian_of(problem, _capped_ratio(ev, columns))
-    residual = kkt_residual(problem, ev, r, columns=columns)
     k = columns.size
     system = np.zeros((k + 1, k + 1))
     system[:k, :k] = hessian
@@ -435,18 +444,13 @@ def _entering(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray
     system[k, :k] = 1.0
     rhs = np.zeros(k + 1)
     rhs[:k] = residual
-    # equilibrated by the diagonal: the curvature can be 1e-17 beside constraints of one
-    diagonal = hessian.diagonal()
-    scale = np.ones(k + 1)
-    positive = diagonal > 0
-    scale[:k][positive] = 1.0 / np.sqrt(np.maximum(diagonal[positive], 1e-280))
-    try:
-        step = scale * np.linalg.solve(system * np.multiply.outer(scale, scale), rhs * scale)
-    except np.linalg.LinAlgError:
+    # (equilibrated: the curvature can be 1e-17 beside constraints of one)
+    step = _bordered_solve(system, rhs, 1.0, always=True, fallback=False)
+    if step is None:
         return None
     step = step[:k]
     gained = step[support.size :]
-    if not (np.isfinite(step).all() and gained.max() > _DUST):
+    if not gained.max() > _DUST:
         return None
     trial = r.copy()
     trial[columns] = np.maximum(r[columns] + step, 0.0)
@@ -578,7 +582,7 @@ def finish(
                 return r, ev, gap, np.inf, False
             r, ev, gap, previous = rescaled, rescaled_ev, rescaled_gap, np.inf
             continue
-        if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:
+        if policy and rounding > POLICY_RTOL:
             extended, previous = True, np.inf
             continue
         if size <= POLICY_RTOL:
@@ -699,22 +703,27 @@ def warm_newton(
     def handover(steps):
         return (full(r) if moved else None), steps
 
-    for steps in range(_WARM_STEPS):
+    def products(marginal):
+        """``z``, ``w = p / z``, ``c`` on the columns of ``columns``, ``c`` on the support and
+        outside it, at ``marginal`` (on the support); ``None`` when a ``z`` is too small."""
         if wide:
-            padded[support] = r
+            padded[support] = marginal
             z = columns @ padded
         else:
-            z = columns @ r
+            z = columns @ marginal
         if not _min(z) >= _WARM_Z_FLOOR:
-            return handover(steps)
+            return None
         w = p / z
+        every = w @ columns
         if wide:
-            every = w @ columns
-            c = every[support]
-            outside = every[unused] if unused.size else None
-        else:
-            c = w @ columns
-            outside = None if others is None else w @ others
+            return z, w, every, every[support], every[unused] if unused.size else None
+        return z, w, every, every, None if others is None else w @ others
+
+    for steps in range(_WARM_STEPS):
+        found = products(r)
+        if found is None:
+            return handover(steps)
+        z, w, every, c, outside = found
         if outside is not None and _max(outside) > _FAR:
             return handover(steps)  # a phenotype far outside wants in: the support changes
         if accurate:
@@ -735,19 +744,18 @@ def warm_newton(
             # The centred form of hessian_of, H - c 1' - 1 c' + 1 1' (sum p = 1), from the
             # plain one; where that cancels to fewer than six digits (small beta) it is
             # formed from sqrt(p) (e / z - 1) itself.
-            c_columns = every if wide else c
-            hessian = plain - c_columns[:, None] - c_columns[None, :] + 1.0
+            hessian = plain - every[:, None] - every[None, :] + 1.0
             if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
                 scaled -= root_p[:, None]
                 hessian = scaled.T @ scaled
             if wide:
                 hessian = hessian[support][:, support]
         if accurate:
-            step, rounding = _support_newton_step(problem, None, r, residual, hessian, error)
-            if policy and rounding > _ROUNDING_SHARE * POLICY_RTOL:
+            step, rounding = _support_newton_step(r, residual, hessian, error)
+            if policy and rounding > POLICY_RTOL:
                 return handover(steps)  # the finish needs the residual in extended precision
         else:
-            step = _support_newton_step(problem, None, r, residual, hessian)
+            step = _support_newton_step(r, residual, hessian)
         trial = r + step
         size = float(_max(np.abs(step / r)))
         # Newton's correction must keep every mass in use positive (else the support moves).
@@ -763,19 +771,9 @@ def warm_newton(
                 # an error of the order of the correction squared, so it is the better of
                 # the two, and costs two products to check instead of another step.
                 corrected = trial / _sum(trial)
-                if wide:
-                    padded[support] = corrected
-                    z = columns @ padded
-                else:
-                    z = columns @ corrected
-                if _min(z) >= _WARM_Z_FLOOR:
-                    w = p / z
-                    every = w @ columns
-                    c_new = every[support] if wide else every
-                    outside_new = (
-                        every[unused] if wide and unused.size
-                        else None if others is None else w @ others
-                    )
+                found = products(corrected)
+                if found is not None:
+                    c_new, outside_new = found[3], found[4]
                     top = float(_max(c_new))
                     gap = math.log(top) if top > 1.0 else 0.0
                     if gap <= tol and (outside_new is None or _max(outside_new) <= 1.0):

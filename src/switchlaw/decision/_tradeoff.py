@@ -62,39 +62,45 @@ class _Locator:
         )
         return r
 
-    def kkt_excess(
-        self, beta: float, smaller: frozenset, x: int, start: np.ndarray, seen: dict
-    ) -> float:
-        """``log c_x(beta)`` with the marginal optimised over ``smaller``; ``seen`` maps the
-        betas already evaluated in this search to their value and marginal (Brent's method
-        asks for its end points again, and the nearest solution is the best warm start)."""
+    def on_smaller(
+        self, beta: float, smaller: frozenset, start: np.ndarray | None, seen: dict
+    ) -> tuple[np.ndarray, np.ndarray, bool]:
+        """The optimum over ``smaller`` at ``beta``, ``c`` of every phenotype there, and whether
+        the solve converged. ``seen`` maps the betas already solved in this search to their
+        marginal and ``c`` (Brent's method asks for its end points again, and the nearest
+        solution is the best warm start, else ``start``)."""
         if beta in seen:
-            return seen[beta][0]
+            return (*seen[beta], True)
         allowed = np.zeros(self.n, dtype=bool)
         allowed[list(smaller)] = True
         if seen:
-            start = seen[min(seen, key=lambda b: abs(b - beta))][1]
+            start = seen[min(seen, key=lambda b: abs(b - beta))][0]
         record = solve_marginal(
             self.payoff, self.env, beta, start=start, allowed=allowed, gaps=self.gaps,
             policy=False,
         )
-        value = float(np.log(evaluate(self.gaps.at(beta), record.marginal).c[x]))
+        c = evaluate(self.gaps.at(beta), record.marginal).c
         if record.converged:
-            seen[beta] = (value, record.marginal)
-        return value
+            seen[beta] = (record.marginal, c)
+        return record.marginal, c, record.converged
+
+    def kkt_excess(
+        self, beta: float, smaller: frozenset, x: int, start: np.ndarray, seen: dict
+    ) -> float:
+        """``log c_x(beta)`` with the marginal optimised over ``smaller`` (see
+        :meth:`on_smaller`)."""
+        return float(np.log(self.on_smaller(beta, smaller, start, seen)[1][x]))
 
     def one_change(
         self, beta: float, root: float, smaller: frozenset, x: int, seen: dict, x_in: bool
     ) -> bool:
-        """Whether the optimal support at ``beta`` (between ``root`` and ``beta``, see below)
-        is ``smaller`` plus ``x`` (``x_in``) or ``smaller`` alone, judged from the optimum over ``smaller`` (warm-started from the
-        nearest beta of the search) by the Kuhn–Tucker conditions with strict margins: every
-        mass of ``smaller`` in use, ``c_j < 1`` for every other phenotype, and ``c_x > 1``
-        exactly when ``x_in``. With strict margins a small entering mass of ``x`` moves none
-        of them across, so the support there is the one claimed (convexity: the conditions
-        are sufficient; Blahut 1972)."""
-        allowed = np.zeros(self.n, dtype=bool)
-        allowed[list(smaller)] = True
+        """Whether the optimal support at ``beta`` (or nearer ``root``, see below) is
+        ``smaller`` plus ``x`` (``x_in``) or ``smaller`` alone, judged from the optimum over
+        ``smaller`` by the Kuhn–Tucker conditions with strict margins: every mass of
+        ``smaller`` in use, ``c_j < 1`` for every other phenotype, and ``c_x > 1`` exactly when
+        ``x_in``. With strict margins a small entering mass of ``x`` moves none of them
+        across, so the support there is the one claimed (convexity: the conditions are
+        sufficient; Blahut 1972)."""
         # Brent's method left solutions on that side of the root, closer to it than beta is:
         # the farthest of them serves as well as a new solve at beta (a subinterval of the same
         # window), and costs no solve.
@@ -102,20 +108,13 @@ class _Locator:
         window = [b for b in seen if (b - root) * (beta - root) > 0 and abs(b - root) <= reach]
         if window:
             beta = max(window, key=lambda b: abs(b - root))
-            marginal = seen[beta][1]
-        else:
-            start = seen[min(seen, key=lambda b: abs(b - beta))][1]
-            record = solve_marginal(
-                self.payoff, self.env, beta, start=start, allowed=allowed, gaps=self.gaps,
-                policy=False,
-            )
-            if not record.converged:
-                return False
-            marginal = record.marginal
-        if not (marginal[allowed] > SUPPORT_FLOOR).all():
+        marginal, c, converged = self.on_smaller(beta, smaller, None, seen)
+        allowed = np.zeros(self.n, dtype=bool)
+        allowed[list(smaller)] = True
+        if not converged or not (marginal[allowed] > SUPPORT_FLOOR).all():
             return False
         with np.errstate(divide="ignore"):
-            log_c = np.log(evaluate(self.gaps.at(beta), marginal).c)
+            log_c = np.log(c)
         others = ~allowed
         others[x] = False
         return bool((log_c[others] < 0).all() and (log_c[x] > 0) == x_in and log_c[x] != 0)
