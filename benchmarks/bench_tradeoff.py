@@ -563,22 +563,30 @@ def streaming_pass_seconds(m: int, n: int, repeats: int) -> float:
 
 def counted_iterations(fn) -> int:
     """Newton iterations of every solve that ``fn()`` runs (the grid points and the search for
-    the critical betas alike), counted once, outside the timed runs."""
-    from switchlaw.decision import _minimum_information
+    the critical betas alike), and the Newton steps that locate the critical betas
+    (``kkt_root``), counted once, outside the timed runs."""
+    from switchlaw.decision import _minimum_information, _tradeoff
 
-    original = _minimum_information.newton_marginal
+    solver, root = _minimum_information.newton_marginal, _tradeoff.kkt_root
     total = [0]
 
-    def counting(*args, **kwargs):
-        result = original(*args, **kwargs)
+    def counting_solver(*args, **kwargs):
+        result = solver(*args, **kwargs)
         total[0] += result.iterations
         return result
 
-    _minimum_information.newton_marginal = counting
+    def counting_root(*args, **kwargs):
+        found = root(*args, **kwargs)
+        total[0] += found[2]
+        return found
+
+    _minimum_information.newton_marginal = counting_solver
+    _tradeoff.kkt_root = counting_root
     try:
         fn()
     finally:
-        _minimum_information.newton_marginal = original
+        _minimum_information.newton_marginal = solver
+        _tradeoff.kkt_root = root
     return total[0]
 
 

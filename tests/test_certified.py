@@ -194,6 +194,57 @@ def test_every_transition_keeps_its_digits_in_small_and_large_units():
             assert (a.entering, a.leaving) == (b.entering, b.leaving)
 
 
+def transition_equations(payoff, env, support, x):
+    """The Kuhn–Tucker system of a transition at 40 digits: ``c_j = 1`` for ``j`` in the
+    support and for the phenotype ``x`` that enters or leaves there, in the masses on the
+    support and beta (Blahut 1972; ``sum r = 1`` follows, as ``sum_j r_j c_j = 1``)."""
+    gaps = payoff - payoff.max(axis=1, keepdims=True)  # the solver's float64 gaps, exactly
+    columns = [*support, x]
+    k = len(support)
+    table = [[mpmath.mpf(float(gaps[y, j])) for j in columns] for y in range(gaps.shape[0])]
+    probs = [mpmath.mpf(float(v)) for v in env]
+
+    def equations(*unknowns):
+        r, beta = unknowns[:k], unknowns[k]
+        expo = [[mpmath.exp(beta * g) for g in row] for row in table]
+        z = [sum(r[i] * row[i] for i in range(k)) for row in expo]
+        return [
+            sum(p * row[j] / zy for p, row, zy in zip(probs, expo, z)) - 1 for j in range(k + 1)
+        ]
+
+    return equations
+
+
+def test_later_transitions_match_a_40_digit_kuhn_tucker_root():
+    # Every transition past the first (one phenotype entering or leaving) against the root of
+    # its Kuhn–Tucker system solved by mpmath's findroot at 40 digits from a start 1e-4 away.
+    # Pairs of transitions closer than 1e-6 relative (a swap within a nearly flat objective)
+    # are left out: between them the support itself is not resolved by float64.
+    rng = np.random.default_rng(7)
+    checked = 0
+    while checked < 12:
+        states, phenotypes = int(rng.integers(3, 10)), int(rng.integers(3, 6))
+        payoff, env = rng.normal(size=(states, phenotypes)), rng.dirichlet(np.ones(states))
+        found = sl.tradeoff(payoff, env, np.geomspace(0.05, 20, 9)).critical_betas
+        for i, transition in enumerate(found[1:], start=1):
+            others = [t.beta for j, t in enumerate(found) if j != i]
+            if any(abs(b - transition.beta) < 1e-6 * transition.beta for b in others):
+                continue
+            if len(transition.entering) + len(transition.leaving) != 1:
+                continue
+            (x,) = transition.entering + transition.leaving
+            side = -1e-7 if transition.entering else 1e-7
+            smaller = sl.solve(payoff, env, transition.beta * (1 + side)).marginal
+            support = [int(j) for j in np.flatnonzero(smaller > 1e-10) if j != x]
+            with mpmath.workdps(40):
+                start = [mpmath.mpf(float(v)) for v in smaller[support]]
+                start.append(mpmath.mpf(transition.beta * (1 + 1e-4)))
+                root = mpmath.findroot(transition_equations(payoff, env, support, x), start)
+                exact = float(root[len(support)])
+            assert transition.beta == pytest.approx(exact, rel=1e-12, abs=0)
+            checked += 1
+
+
 def test_a_curve_past_the_critical_beta_is_certified_too():
     # The curve warm-starts each beta from the last (a different route to the policy than a
     # cold solve): the same Kuhn–Tucker references, every entry within 1e-8 relative.

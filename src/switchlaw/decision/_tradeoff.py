@@ -6,6 +6,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.linalg.lapack import dgesv as _gesv
 from scipy.optimize import brentq
 from scipy.special import entr
 
@@ -18,9 +19,10 @@ from ._minimum_information import (
     minimum_information_marginal,
     solve_marginal,
 )
+from ._marginal_newton import POLICY_RTOL
 from ._problem import curve_policy, evaluate, max_entropy_policy
 from ._results import CriticalBeta, Tradeoff
-from ._problem import UNDERFLOW
+from ._problem import UNDERFLOW, Gaps
 from ._solve import OBJECTIVES, check_problem, excess_of_log, policy_figures, solve
 
 #: Marginal entries below this count as "not in use" when comparing supports.
@@ -34,13 +36,111 @@ def _support(r: np.ndarray) -> frozenset:
     return frozenset(int(i) for i in np.flatnonzero(r > SUPPORT_FLOOR))
 
 
+#: Newton's method on a transition's joint system gives up after this many steps (the
+#: bracketed search then takes over).
+_ROOT_STEPS = 40
+#: ... and where a partition sum on the smaller support falls below this (its ratios would
+#: need the log domain).
+_ROOT_Z_FLOOR = 1e-100
+_sum, _min = np.add.reduce, np.minimum.reduce
+
+
+def kkt_root(
+    gaps: Gaps, support: np.ndarray, x: int, beta: float, r: np.ndarray, lo: float, hi: float
+) -> tuple[float | None, np.ndarray, int]:
+    """The beta in ``(lo, hi)`` where phenotype ``x`` enters or leaves the optimum over
+    ``support``: Newton's method on the Kuhn–Tucker conditions and the transition together,
+    ``c_j(r, beta) = 1`` for ``j`` in ``support`` and ``c_x(r, beta) = 1``, in the masses on
+    the support and beta at once.
+
+    Started from ``r``, the optimum over ``support`` at ``beta`` (a grid point), it needs no
+    solve per step: each step costs a few products over the states on the support's columns
+    and ``x``'s. With ``E = exp(beta gaps)``, ``z = E_S r``, ``w = p / z``, the linearisation is
+    ``dc_j = -sum_i M_ji dr_i + b_j dbeta`` with ``M_ji = sum_y p(y) E_yj E_yi / z_y^2`` (the
+    Hessian of ``F``) and ``b_j = sum_y w_y E_yj (gaps_yj - sum_i r_i gaps_yi E_yi / z_y)``. On
+    steps that keep ``sum r = 1`` the Hessian is used in its centred form, as in
+    :func:`~._marginal_newton.warm_newton`; the support's rows carry the multiplier of that
+    constraint.
+
+    Returns the root, the masses on ``support`` there and the number of steps taken. The root
+    is found once beta's step is below :data:`BETA_RTOL` relative or the steps stop shrinking
+    at rounding level; it is ``None`` when a step leaves the bracket or empties a mass even
+    when shortened, a partition sum is too small, or Newton's method does not converge. The
+    caller checks the supports either side.
+    """
+    k = support.size
+    p = gaps.p
+    if k < 1 or k > p.size:
+        return None, r, 0
+    by_phenotype = gaps.scratch.kept("gaps_t", lambda: np.ascontiguousarray(gaps.gaps.T))
+    table = by_phenotype[np.append(support, x)]
+    root_p = np.sqrt(p)
+    system = np.empty((k + 2, k + 2))
+    rhs = np.empty(k + 2)
+    previous = np.inf
+    for steps in range(1, _ROOT_STEPS + 1):
+        expo = np.exp(beta * table)
+        z = r @ expo[:k]
+        if not _min(z) > _ROOT_Z_FLOOR:
+            return None, r, steps
+        w = p / z
+        c = expo @ w
+        weighted = table * expo
+        mean_gap = (r @ weighted[:k]) / z
+        b = weighted @ w - expo @ (w * mean_gap)
+        scaled = expo * (root_p / z)
+        plain = scaled @ scaled.T
+        hessian = plain - c[:, None] - c[None, :] + 1.0
+        if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
+            scaled -= root_p  # the centred form from sqrt(p) (E / z - 1) itself (small beta)
+            hessian = scaled @ scaled.T
+        excess = c - 1.0
+        # Unknowns: the relative changes of the masses, the multiplier, the change of beta.
+        system[:k, :k] = hessian[:k, :k] * np.multiply.outer(r, r)
+        system[:k, k] = r
+        system[:k, k + 1] = -r * b[:k]
+        system[k, :k] = r
+        system[k, k:] = 0.0
+        system[k + 1, :k] = (hessian[k, :k] + excess[:k]) * r
+        system[k + 1, k] = 0.0
+        system[k + 1, k + 1] = -b[k]
+        rhs[:k] = r * excess[:k]
+        rhs[k] = 0.0
+        rhs[k + 1] = excess[k]
+        rows = np.abs(system).max(axis=1)
+        if not (rows > 0).all():
+            return None, r, steps
+        solution, info = _gesv(system / rows[:, None], rhs / rows)[2:]
+        if info != 0 or not np.isfinite(solution).all():
+            return None, r, steps
+        relative, change = solution[:k], solution[k + 1]
+        t = 1.0
+        while True:
+            trial_beta = beta + t * change
+            trial = r * (1.0 + t * relative)
+            if lo < trial_beta < hi and _min(trial) > 0:
+                break
+            t *= 0.5
+            if t < 1e-3:
+                return None, r, steps
+        size = max(abs(t * change) / trial_beta, float(np.abs(t * relative).max()))
+        beta, r = trial_beta, trial / _sum(trial)
+        if t == 1.0 and abs(change) <= BETA_RTOL * beta and size <= POLICY_RTOL:
+            return beta, r, steps
+        if size > 0.25 * previous and size <= 1e-8:
+            return beta, r, steps  # the steps stopped shrinking: rounding level
+        previous = size
+    return None, r, _ROOT_STEPS
+
+
 class _Locator:
     """Finds the betas between two grid points where the support of the marginal changes.
 
     Works on distinct phenotype columns. With one phenotype ``x`` changing between supports
     ``S`` and ``S + {x}``, the transition is the root of ``log c_x(beta)`` with the marginal
-    optimised over ``S`` alone (the Kuhn–Tucker condition for ``x``), found by Brent's method.
-    Otherwise the interval is bisected on the full solution.
+    optimised over ``S`` alone (the Kuhn–Tucker condition for ``x``): found by
+    :func:`kkt_root`, else by Brent's method. Otherwise the interval is bisected on the full
+    solution.
     """
 
     def __init__(self, prepared: Prepared, env: np.ndarray):
@@ -52,13 +152,17 @@ class _Locator:
         self.identity = Prepared(
             self.payoff, np.arange(self.n), np.ones(self.n, dtype=int), prepared.gaps
         )
+        #: The first critical beta (closed form, set by the caller): a phenotype enters
+        #: exactly there, and above it no solve needs the test for one phenotype.
+        self.first = math.inf
 
     # Both searches below use c(x) and the support only, never a policy: their solves are
     # certified in the objective, with the masses at float64's rounding level (policy=False).
 
     def full(self, beta: float, start: np.ndarray | None) -> np.ndarray:
         r, _, _ = minimum_information_marginal(
-            self.payoff, self.env, beta, start=start, prepared=self.identity, policy=False
+            self.payoff, self.env, beta, start=start, prepared=self.identity, policy=False,
+            past_first=beta > self.first,
         )
         return r
 
@@ -92,7 +196,8 @@ class _Locator:
         return float(np.log(self.on_smaller(beta, smaller, start, seen)[1][x]))
 
     def one_change(
-        self, beta: float, root: float, smaller: frozenset, x: int, seen: dict, x_in: bool
+        self, beta: float, root: float, smaller: frozenset, x: int, seen: dict, x_in: bool,
+        start: np.ndarray | None = None,
     ) -> bool:
         """Whether the optimal support at ``beta`` (or nearer ``root``, see below) is
         ``smaller`` plus ``x`` (``x_in``) or ``smaller`` alone, judged from the optimum over
@@ -108,7 +213,7 @@ class _Locator:
         window = [b for b in seen if (b - root) * (beta - root) > 0 and abs(b - root) <= reach]
         if window:
             beta = max(window, key=lambda b: abs(b - root))
-        marginal, c, converged = self.on_smaller(beta, smaller, None, seen)
+        marginal, c, converged = self.on_smaller(beta, smaller, start, seen)
         allowed = np.zeros(self.n, dtype=bool)
         allowed[list(smaller)] = True
         if not converged or not (marginal[allowed] > SUPPORT_FLOOR).all():
@@ -127,35 +232,71 @@ class _Locator:
         if len(changed) == 1 and hi - lo > BETA_RTOL * hi:
             (x,) = changed
             smaller = s_lo & s_hi
-            start = r_lo if s_lo == smaller else r_hi
-            seen = {}
-            try:
-                # At beta = 0 every Kuhn–Tucker condition holds with equality; start just above.
-                a = lo if lo > 0 else hi * 1e-12
-                f_lo = self.kkt_excess(a, smaller, x, start, seen)
-                f_hi = self.kkt_excess(hi, smaller, x, start, seen)
-                if f_lo * f_hi < 0:
-                    beta = brentq(
-                        self.kkt_excess, a, hi, args=(smaller, x, start, seen),
-                        xtol=1e-300, rtol=BETA_RTOL,
-                    )
-                    # Trust the root only if it is the single change in the interval: just
-                    # either side, the supports must be the two end supports.
-                    step = 1e-7 * beta
-                    entering = s_lo == smaller
-                    if self.one_change(
-                        max(beta - step, lo), beta, smaller, x, seen, x_in=not entering
-                    ) and self.one_change(
-                        min(beta + step, hi), beta, smaller, x, seen, x_in=entering
-                    ):
-                        return [self._record(beta, s_lo, s_hi)]
-            except (ValueError, FloatingPointError):
-                pass
+            entering = s_lo == smaller
+            if entering and lo == self.first and self.one_change(
+                min(lo * (1.0 + 1e-7), hi), lo, smaller, x, {}, x_in=True, start=r_lo
+            ):
+                # The first critical beta (closed form) is a grid point: x enters there.
+                return [self._record(lo, s_lo, s_hi)]
+            found = self._joint(lo, r_lo, hi, r_hi, smaller, x, entering)
+            if found is None:
+                found = self._bracketed(lo, r_lo, hi, r_hi, smaller, x, entering)
+            if found is not None:
+                return [self._record(found, s_lo, s_hi)]
         if hi - lo <= BETA_RTOL * hi:
             return [self._record(0.5 * (lo + hi), s_lo, s_hi)]
         mid = 0.5 * (lo + hi)
         r_mid = self.full(mid, r_lo)
         return self.between(lo, r_lo, mid, r_mid) + self.between(mid, r_mid, hi, r_hi)
+
+    def _joint(self, lo, r_lo, hi, r_hi, smaller, x, entering) -> float | None:
+        """The root by :func:`kkt_root`, if it converges and is the single change (see
+        :meth:`_single`); else ``None``. It starts from the grid point whose optimum is over
+        ``smaller``, and else from the other one, its masses on ``smaller`` renormalised
+        (``c_x`` need not be monotone in beta: Newton's step from one end can point away)."""
+        support = np.array(sorted(smaller))
+        ends = ((lo, r_lo), (hi, r_hi)) if entering else ((hi, r_hi), (lo, r_lo))
+        for beta, start in ends:
+            if not beta > 0:
+                continue  # at beta = 0 every Kuhn–Tucker condition holds with equality
+            r = start[support]
+            root, r_root, _ = kkt_root(self.gaps, support, x, beta, r / _sum(r), lo, hi)
+            if root is not None:
+                start = np.zeros(self.n)
+                start[support] = r_root
+                return root if self._single(root, lo, hi, smaller, x, entering, {}, start) else None
+        return None
+
+    def _bracketed(self, lo, r_lo, hi, r_hi, smaller, x, entering) -> float | None:
+        """The root by Brent's method on :meth:`kkt_excess`, each value a solve over
+        ``smaller``, if it is the single change (see :meth:`_single`); else ``None``."""
+        start = r_lo if entering else r_hi
+        seen = {}
+        try:
+            # At beta = 0 every Kuhn–Tucker condition holds with equality; start just above.
+            a = lo if lo > 0 else hi * 1e-12
+            f_lo = self.kkt_excess(a, smaller, x, start, seen)
+            f_hi = self.kkt_excess(hi, smaller, x, start, seen)
+            if f_lo * f_hi < 0:
+                beta = brentq(
+                    self.kkt_excess, a, hi, args=(smaller, x, start, seen),
+                    xtol=1e-300, rtol=BETA_RTOL,
+                )
+                if self._single(beta, lo, hi, smaller, x, entering, seen, None):
+                    return beta
+        except (ValueError, FloatingPointError):
+            pass
+        return None
+
+    def _single(self, beta, lo, hi, smaller, x, entering, seen, start) -> bool:
+        """Trust a root only if it is the single change in the interval: just either side
+        (1e-7 relative), the supports must be the two end supports."""
+        step = 1e-7 * beta
+        return self.one_change(
+            max(beta - step, lo), beta, smaller, x, seen, x_in=not entering, start=start
+        ) and self.one_change(
+            min(beta + step, hi), beta, smaller, x, seen, x_in=entering, start=start
+        )
 
     @staticmethod
     def _record(beta: float, before: frozenset, after: frozenset) -> tuple:
@@ -187,8 +328,10 @@ def tradeoff(
     Tradeoff
         Arrays over ``betas`` (in the order given) and ``critical_betas``: every beta in the
         scanned range where the set of phenotypes in use changes, located to 1e-12 relative in beta
-        (Brent's method on the Kuhn–Tucker condition of the entering or leaving phenotype).
-        The first one, where a second phenotype enters, comes from its closed form.
+        (Newton's method on the Kuhn–Tucker conditions of the phenotypes in use and of the
+        entering or leaving phenotype, with beta as an unknown; Brent's method where that
+        does not settle). The first one, where a second phenotype enters, comes from its
+        closed form.
 
     Notes
     -----
@@ -451,7 +594,7 @@ def _critical_betas(prepared: Prepared, p, grid, sorted_marginals) -> tuple:
 
     # The first transition has a closed form (Kuhn–Tucker conditions): add it to the points
     # between which changes are located, so that it is never missed, and report it exactly.
-    first = first_critical_beta_of(distinct, p)
+    first = locator.first = first_critical_beta_of(distinct, p)
     points = [(float(b), merged(r)) for b, r in zip(grid, sorted_marginals)]
     if grid[0] < first < grid[-1]:
         points.append((first, locator.full(first, None)))
