@@ -190,7 +190,7 @@ def _bordered_solve(
         system *= np.multiply.outer(scale, scale)
         rhs *= scale if rhs.ndim == 1 else scale[:, None]
     solution, info = _gesv(system, rhs)[2:]
-    if info != 0 or not np.isfinite(solution).all():
+    if info != 0 or not math.isfinite(_sum(solution, axis=None)):
         if not fallback:
             return None
         solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
@@ -220,7 +220,8 @@ def _support_newton_step(
     if scaled is not None:
         system[:k, :k] = scaled
     else:
-        np.multiply(hessian, np.multiply.outer(r, r), out=system[:k, :k])
+        block = np.multiply(hessian, r, out=system[:k, :k])
+        block *= r[:, None]
     system[:k, k] = r
     system[k, :k] = r
     system[k, k] = 0.0
@@ -229,14 +230,27 @@ def _support_newton_step(
         np.multiply(r, c, out=rhs[:k])
         rhs[k] = 0.0
     else:
-        rhs = np.eye(k + 1, k + 2, 1, order="F")
+        rhs = _identity_rhs(k)
         np.multiply(r, c, out=rhs[:k, 0])
     solution = _bordered_solve(system, rhs, _max(r))
     if error is None:
         return r * solution[:k]
     step = r * solution[:k, 0]
-    effect = np.abs(solution[:k, 1 : k + 1]) @ (r * error)
-    return step, (float(effect.max()) if np.isfinite(effect).all() else np.inf)
+    effect = float(_max(np.abs(solution[:k, 1 : k + 1]) @ (r * error)))
+    return step, (effect if effect < np.inf else np.inf)  # (NaN: no bound)
+
+
+#: ``eye(k + 1, k + 2, 1)`` in Fortran order per size: a right-hand side and the columns of
+#: the identity, for a step and the inverse of its system from one factorisation.
+_IDENTITY_RHS: dict = {}
+
+
+def _identity_rhs(k: int) -> np.ndarray:
+    """A fresh copy of ``eye(k + 1, k + 2, 1)`` in Fortran order (first column to fill)."""
+    found = _IDENTITY_RHS.get(k)
+    if found is None:
+        found = _IDENTITY_RHS[k] = np.eye(k + 1, k + 2, 1, order="F")
+    return found.copy(order="F")
 
 
 def _capped_ratio(ev: Evaluation, index: np.ndarray) -> np.ndarray:
@@ -826,7 +840,6 @@ def newton_marginal(
     """
     n = problem.n_phenotypes
     allowed = np.ones(n, dtype=bool) if allowed is None else allowed
-    index = np.flatnonzero(allowed)
     done = 0
     if warm:
         outcome, done = warm_newton(problem, start, allowed, tol, policy)
@@ -834,6 +847,7 @@ def newton_marginal(
             return outcome
         if outcome is not None:
             start = outcome
+    index = allowed.nonzero()[0]
     r = np.where(allowed, start, 0.0)
     r = r / r.sum()
     ev = evaluate(problem, r)

@@ -225,9 +225,9 @@ class _Locator:
         return bool((log_c[others] < 0).all() and (log_c[x] > 0) == x_in and log_c[x] != 0)
 
     def between(self, lo: float, r_lo: np.ndarray, hi: float, r_hi: np.ndarray) -> list:
+        if (r_lo > SUPPORT_FLOOR).tobytes() == (r_hi > SUPPORT_FLOOR).tobytes():
+            return []  # (the common case, without building the sets)
         s_lo, s_hi = _support(r_lo), _support(r_hi)
-        if s_lo == s_hi:
-            return []
         changed = s_lo ^ s_hi
         if len(changed) == 1 and hi - lo > BETA_RTOL * hi:
             (x,) = changed
@@ -576,13 +576,10 @@ def _predict(solved: list, beta: float) -> np.ndarray | None:
             if j != i:
                 weight *= (t - xj) / (xi - xj)
         weights.append(weight)
-    used = last.marginal > 0
-    combined = weights[0] * points[0].logs
-    for weight, point in zip(weights[1:], points[1:]):
-        combined += weight * point.logs
-    np.minimum(combined, 0.0, out=combined)  # a mass is at most one (and exp cannot overflow)
-    start = np.where(used, np.exp(combined), 0.0)
-    total = start.sum()
+    combined = np.array(weights) @ np.array([point.logs for point in points])
+    start = np.exp(np.minimum(combined, 0.0))  # a mass is at most one (and exp cannot overflow)
+    start[~(last.marginal > 0)] = 0.0
+    total = _sum(start)
     return start / total if math.isfinite(total) and total > 0 else last.marginal
 
 
