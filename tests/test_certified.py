@@ -289,6 +289,38 @@ def test_float64_residual_bound_covers_its_rounding():
             assert np.all(bound < 1e-12)
 
 
+def test_plain_residual_bound_covers_its_rounding():
+    # The warm path first forms c - 1 as w @ e - 1 from BLAS products (summation order
+    # unknown) and certifies with a worst-case bound of that form (Higham 2002, §3.1, any
+    # order of summation); against the residual in extended precision the actual error must
+    # stay inside it: at small and large beta, next to a transition, up to 20000 states.
+    from switchlaw.decision._marginal_newton import _plain_error, kkt_residual
+    from switchlaw.decision._problem import Reduced, evaluate
+
+    rng = np.random.default_rng(3)
+    for states, phenotypes in [(3, 2), (50, 4), (2000, 6), (20000, 8)]:
+        payoff = rng.normal(size=(states, phenotypes)) * 10 ** rng.uniform(-1, 1)
+        env = rng.dirichlet(np.ones(states))
+        beta_c = sl.first_critical_beta(payoff, env)
+        for beta in [beta_c * (1 + 1e-6), 1.5 * beta_c, 3 * beta_c + 0.5, 40 * beta_c + 5]:
+            marginal = sl.solve(payoff, env, beta).marginal
+            problem = Reduced.build(payoff, env, beta)
+            support = np.flatnonzero(marginal > 0)
+            r = marginal[support] / marginal[support].sum()
+            columns = problem.expo[:, support]
+            z = columns @ r
+            w = problem.p / z
+            c = w @ columns
+            residual = c - 1.0
+            bound = _plain_error(c, residual, w, z, support.size)
+            full = np.zeros(phenotypes)
+            full[support] = r
+            exact = kkt_residual(problem, evaluate(problem, full), full, columns=support,
+                                 extended=True)
+            assert np.all(np.abs(residual - exact) <= bound)
+            assert np.all(bound < 1e-10)
+
+
 def test_a_dominated_phenotype_leaves_exactly_and_the_policy_is_certified():
     # Found by Hypothesis: phenotype 1 is never better than phenotype 0 and phenotype 3 never
     # better than 2, so both leave at beta = 10 (their Kuhn–Tucker conditions fail; Blahut

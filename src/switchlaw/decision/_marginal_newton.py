@@ -190,7 +190,7 @@ def _bordered_solve(
         system *= np.multiply.outer(scale, scale)
         rhs *= scale if rhs.ndim == 1 else scale[:, None]
     solution, info = _gesv(system, rhs)[2:]
-    if info != 0 or not math.isfinite(_sum(solution, axis=None)):
+    if info != 0 or not np.isfinite(solution).all():
         if not fallback:
             return None
         solution = np.linalg.lstsq(system, rhs, rcond=None)[0]
@@ -661,6 +661,24 @@ def _accurate_residual(expo, m1_t, p, r, z, scratch: Scratch, support=None):
     return numerator.sum(axis=1), _rounding_factor(p.size, r.size) * magnitude
 
 
+def _plain_error(c, residual, w, z, k: int) -> np.ndarray:
+    """A bound on the rounding error of ``c - 1`` formed as ``w @ e - 1`` (``w = p / z``,
+    ``z = e @ r`` by BLAS products in any order, ``r`` normalised in float64) against the
+    residual of the exact exponentials at the normalised marginal, as
+    :func:`kkt_residual`'s extended form computes it. Each term ``w(y) e(y,x)`` carries
+    ``k + 3`` roundings (the product for ``z``, a quotient, a product, ``exp`` itself), the sum
+    over ``m`` states ``m - 1`` more (Higham 2002, §3.1: any order of summation), ``sum r = 1``
+    another ``k + 1``; rounding ``beta * gaps`` moves ``exp`` by at most ``|x| e^x u <=
+    e^-1 u`` in absolute terms, which reaches ``c`` through ``e`` (``sum_y w(y) / e``) and
+    through ``z`` (at most ``c / (e min z)`` relative); the final subtraction is exact between
+    one half and two (Sterbenz), else one more rounding."""
+    m = w.size
+    top = float(_min(z))
+    spread = _sum(w)
+    bound = (m + 2 * k + 5) * c + (c / top + spread) / math.e + np.abs(residual)
+    return (1.01 * _UNIT) * bound
+
+
 def warm_newton(
     problem: Reduced, start: np.ndarray, allowed: np.ndarray, tol: float, policy: bool = True
 ) -> tuple[MarginalResult | np.ndarray | None, int]:
@@ -704,6 +722,7 @@ def warm_newton(
     r = r / _sum(r)
     padded = np.zeros(n) if wide else None
     m1 = None
+    exact_form = False  # c - 1 without cancellation (kkt_residual's float64 form)
     hessian = None
     accurate = False
     previous = np.inf
@@ -740,18 +759,13 @@ def warm_newton(
         z, w, every, c, outside = found
         if outside is not None and _max(outside) > _FAR:
             return handover(steps)  # a phenotype far outside wants in: the support changes
-        if accurate:
-            if m1 is None:
-                m1 = np.take(
-                    problem.gaps_by_phenotype, support, axis=0, out=scratch.get("m1", (k, m))
-                )
-                m1 *= problem.beta
-                np.expm1(m1, out=m1)
+        residual = c - 1.0
+        if accurate and exact_form:
             residual, error = _accurate_residual(
                 columns, m1, p, r, z, scratch, support if wide else None
             )
-        else:
-            residual = c - 1.0
+        elif accurate:
+            error = _plain_error(c, residual, w, z, k)
         if hessian is None or previous > _CHORD:
             np.multiply(columns, (root_p / z)[:, None], out=scaled)
             plain = scaled.T @ scaled
@@ -766,6 +780,18 @@ def warm_newton(
                 hessian = hessian[support][:, support]
         if accurate:
             step, rounding = _support_newton_step(r, residual, hessian, error)
+            if policy and rounding > POLICY_RTOL and not exact_form:
+                # c - 1 as formed cannot resolve the step: the form without cancellation
+                exact_form = True
+                m1 = np.take(
+                    problem.gaps_by_phenotype, support, axis=0, out=scratch.get("m1", (k, m))
+                )
+                m1 *= problem.beta
+                np.expm1(m1, out=m1)
+                residual, error = _accurate_residual(
+                    columns, m1, p, r, z, scratch, support if wide else None
+                )
+                step, rounding = _support_newton_step(r, residual, hessian, error)
             if policy and rounding > POLICY_RTOL:
                 return handover(steps)  # the finish needs the residual in extended precision
         else:
