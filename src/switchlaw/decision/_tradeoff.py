@@ -75,23 +75,32 @@ def kkt_root(
     p = gaps.p
     if k < 1 or k > p.size:
         return None, r, 0
-    by_phenotype = gaps.scratch.kept("gaps_t", lambda: np.ascontiguousarray(gaps.gaps.T))
-    table = by_phenotype[np.append(support, x)]
-    root_p = np.sqrt(p)
+    scratch = gaps.scratch
+    by_phenotype = scratch.kept("gaps_t", lambda: np.ascontiguousarray(gaps.gaps.T))
+    shape = (k + 1, p.size)
+    # Work arrays reused from step to step (fresh ones cost the zeroing of their pages).
+    table = np.take(
+        by_phenotype, np.append(support, x), axis=0, out=scratch.get("root_table", shape)
+    )
+    expo = scratch.get("root_expo", shape)
+    weighted = scratch.get("root_weighted", shape)
+    scaled = scratch.get("root_scaled", shape)
+    root_p = scratch.kept("root_p", lambda: np.sqrt(p))
     system = np.empty((k + 2, k + 2))
     rhs = np.empty(k + 2)
     previous = np.inf
     for steps in range(1, _ROOT_STEPS + 1):
-        expo = np.exp(beta * table)
+        np.multiply(table, beta, out=expo)
+        np.exp(expo, out=expo)
         z = r @ expo[:k]
         if not _min(z) > _ROOT_Z_FLOOR:
             return None, r, steps
         w = p / z
         c = expo @ w
-        weighted = table * expo
+        np.multiply(table, expo, out=weighted)
         mean_gap = (r @ weighted[:k]) / z
         b = weighted @ w - expo @ (w * mean_gap)
-        scaled = expo * (root_p / z)
+        np.multiply(expo, root_p / z, out=scaled)
         plain = scaled @ scaled.T
         hessian = plain - c[:, None] - c[None, :] + 1.0
         if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
