@@ -448,12 +448,12 @@ class _Table:
         size = max(1, _CHUNK // self.gaps.size)
         for lo in range(0, k, size):
             b, r = betas[lo : lo + size], marginals[lo : lo + size]
-            expo = np.exp(b[:, None, None] * self.gaps)
-            z = (expo @ r[:, :, None])[..., 0]
+            ratio = b[:, None, None] * self.gaps
+            np.exp(ratio, out=ratio)
+            z = (ratio @ r[:, :, None])[..., 0]
             bad = ~(z.min(axis=1) > UNDERFLOW)
             z[bad] = 1.0
-            ratio = expo / z[..., None]  # q / r
-            del expo
+            ratio /= z[..., None]  # q / r, in place of the exponentials
             q = ratio * r[:, None, :]
             # I = sum_y p(y) (beta sum_x q g - log z) and H(X|Y) = -sum_x f log r - I, one
             # logarithm per state; trusted where the terms cancel by less than six digits
@@ -461,7 +461,10 @@ class _Table:
             # forms below, accurate to the last digit however small I or H(X|Y) is.
             with np.errstate(divide="ignore"):
                 log_z = np.log(z)
-            gain = b[:, None] * (q * self.gaps).sum(axis=2)
+            # sums over the (few) phenotypes as products with ones: numpy's reduction along
+            # a short last axis costs several passes, a matrix-vector product one
+            ones = np.ones(n)
+            gain = b[:, None] * ((q * self.gaps) @ ones)
             information = (gain - log_z) @ self.p
             scale_i = (np.abs(gain) + np.abs(log_z)) @ self.p
             marginal = self.p @ q
@@ -474,12 +477,12 @@ class _Table:
                 information[careful] = (
                     excess_of_log(ratio[careful] - 1.0) @ r[careful, :, None]
                 )[..., 0] @ self.p
-                entropy[careful] = entr(q[careful]).sum(axis=2) @ self.p
+                entropy[careful] = (entr(q[careful]) @ ones) @ self.p
             del ratio
             chunk = out[lo : lo + size]
             chunk[:, 0] = np.maximum(information, 0.0) / NATS_PER_BIT
             chunk[:, 1] = entropy / NATS_PER_BIT
-            chunk[:, 2] = self.star_mean + (q * self.to_star).sum(axis=2) @ self.p
+            chunk[:, 2] = self.star_mean + ((q * self.to_star) @ ones) @ self.p
             fractions[lo : lo + size] = marginal
             chunk[bad] = np.nan
             failed[lo : lo + size] = bad
