@@ -159,7 +159,13 @@ def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
     are ``1 + O(beta)`` and the plain form buries an ``O(beta^2)`` curvature under the
     rounding of entries of order one)."""
     centred = ratio - 1.0
-    return centred.T @ (centred * problem.p[:, None])
+    centred *= _root_p(problem)[:, None]
+    return centred.T @ centred
+
+
+def _root_p(problem: Reduced) -> np.ndarray:
+    """``sqrt(p)``, made once per table."""
+    return problem.scratch.kept("root_p", lambda: np.sqrt(problem.p))
 
 
 def _bordered_solve(
@@ -344,16 +350,28 @@ def kkt_residual(
         scratch = problem.scratch
         shape = (problem.p.size, columns.size)
         if rows.all():
-            e = np.take(problem.expo, columns, axis=1, out=scratch.get("columns", shape))
-            m1_t = np.take(
-                problem.gaps_by_phenotype, columns, axis=0, out=scratch.get("m1", shape[::-1])
-            )
-            m1_t *= problem.beta
+            # No copy of the table's columns (a strided gather costs several passes): the
+            # residual reads the rows it needs from the whole table, and z = expo @ r with
+            # r zero outside ``columns``.
+            every = columns.size == r.size  # (then columns is every phenotype, in order)
+            m1_t = scratch.get("m1", shape[::-1])
+            by_phenotype = problem.gaps_by_phenotype
+            if every:
+                np.multiply(by_phenotype, problem.beta, out=m1_t)
+            else:
+                for i, j in enumerate(columns):
+                    np.multiply(by_phenotype[j], problem.beta, out=m1_t[i])
             np.expm1(m1_t, out=m1_t)
+            residual, error = _accurate_residual(
+                problem.expo, m1_t, problem.p, r_col, problem.expo @ r, scratch,
+                None if every else columns,
+            )
         else:
             e = problem.expo[np.ix_(rows, columns)]
             m1_t = np.expm1(problem.beta * problem.gaps_by_phenotype[np.ix_(columns, rows)])
-        residual, error = _accurate_residual(e, m1_t, problem.p[rows], r_col, e @ r_col, scratch)
+            residual, error = _accurate_residual(
+                e, m1_t, problem.p[rows], r_col, e @ r_col, scratch
+            )
     if ev.low.any():
         low_ratio = ev.ratio[ev.low][:, columns]
         residual = residual + problem.p[ev.low] @ (low_ratio - 1.0)
@@ -412,14 +430,17 @@ def _scaled_hessian(problem: Reduced, ev: Evaluation, r: np.ndarray, support: np
     (the centred form of :func:`hessian_of`), from the policy ``q = r exp(beta gaps) / z``
     itself (every entry in [0, 1], so nothing overflows and nothing needs capping, however
     small a mass or a state probability)."""
-    q = ev.ratio[:, support] * r[support]
+    ratio = ev.ratio
+    every = support.size == ratio.shape[1]  # (then support is every phenotype, in order)
+    q = ratio * r if every else ratio[:, support] * r[support]
     if ev.low.any():
         with np.errstate(divide="ignore"):
             q[ev.low] = np.exp(
                 problem.log_terms(r, ev.low)[:, support] - ev.log_z[ev.low, None]
             )
     q -= r[support]  # the centred form (see hessian_of)
-    return q.T @ (q * problem.p[:, None])
+    q *= _root_p(problem)[:, None]
+    return q.T @ q
 
 
 def emptied(problem: Reduced, ev: Evaluation, r: np.ndarray, index) -> np.ndarray:
