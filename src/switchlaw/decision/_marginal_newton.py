@@ -268,6 +268,23 @@ def _capped_ratio(ev: Evaluation, index: np.ndarray) -> np.ndarray:
     return ratio
 
 
+def _direction_hessian(problem: Reduced, ev: Evaluation, index: np.ndarray) -> np.ndarray:
+    """:func:`hessian_of` on the columns in ``index``. Where no row is in log domain and no
+    ratio needs the cap (every ``1 / Z <= 1e100``), formed from the table itself as
+    ``sqrt(p) (e / Z - 1)``: the same terms without the ratio array, its cap and its
+    maximum (three passes over the table fewer)."""
+    if not ev.low.any():
+        inverse_z = np.exp(-ev.log_z)
+        if _max(inverse_z) <= _RATIO_CAP:
+            root_p = _root_p(problem)
+            expo = problem.expo
+            columns = expo if index.size == expo.shape[1] else expo[:, index]
+            scaled = columns * (root_p * inverse_z)[:, None]
+            scaled -= root_p[:, None]
+            return scaled.T @ scaled
+    return hessian_of(problem, _capped_ratio(ev, index))
+
+
 def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarray, tol: float):
     """The step for the phenotypes in ``index``: Newton on the support when it is settled,
     otherwise the minimiser of the quadratic model over the simplex.
@@ -275,7 +292,7 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     The Hessian over ``index`` is formed once (one pass over the states) and serves both.
     """
     support = r > 0
-    hessian = hessian_of(problem, _capped_ratio(ev, index))
+    hessian = _direction_hessian(problem, ev, index)
     c = ev.c[index]
     # c - 1 instead of c on the right-hand side: the constant only shifts the multiplier of
     # sum r = 1, and near the optimum it would swamp the differences that set the step.
