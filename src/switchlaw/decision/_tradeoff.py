@@ -19,9 +19,8 @@ from ._minimum_information import (
     minimum_information_marginal,
     solve_marginal,
 )
-from ._problem import curve_policy, evaluate, max_entropy_policy
+from ._problem import UNDERFLOW, Gaps, curve_policy, evaluate, max_entropy_policy
 from ._results import CriticalBeta, Tradeoff
-from ._problem import UNDERFLOW, Gaps
 from ._solve import OBJECTIVES, check_problem, excess_of_log, policy_figures, solve
 
 #: Marginal entries below this count as "not in use" when comparing supports.
