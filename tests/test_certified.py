@@ -411,16 +411,18 @@ def test_a_flat_objective_at_tiny_beta_keeps_both_tied_phenotypes():
         np.testing.assert_allclose(policy.marginal, [0.5, 0.5, 0.0], rtol=1e-10, atol=0)
 
 
-def test_converged_is_never_said_of_a_spread_policy_on_one_state():
+@pytest.mark.parametrize("payoff, beta", [
+    ([[-1.0, 5.8857277255511e-87, 0.0]], 1.401298464324817e-45),
+    ([[-1.0, 3.00922448e-282, 0.0]], 1.3613336007147712e-110),
+    ([[1.58820315e-230, 5.73027039e-169, 0.0]], 1.0),
+])
+def test_one_state_takes_the_best_phenotype_however_small_the_differences(payoff, beta):
     # Found by Hypothesis. With one state, I(X;Y) = 0 for every policy and the optimum puts all
-    # mass on the best phenotype (Kuhn–Tucker conditions, Blahut 1972). At beta = 1.4e-45 and
-    # payoff differences of 6e-87 the objective cannot tell a spread marginal from it (1e-132
-    # nats), and the Hessian along the simplex is singular (more phenotypes in use than
-    # states): the solve may fail, but it must not call a spread marginal converged.
-    payoff = np.array([[-1.0, 5.8857277255511e-87, 0.0]])
-    policy = sl.solve(payoff, [1.0], 1.401298464324817e-45)
-    if policy.status == "converged":
-        np.testing.assert_array_equal(policy.marginal, [0.0, 1.0, 0.0])
-    else:
-        assert policy.status == "not-converged"
-        assert "singular" in policy.message
+    # mass on the best phenotype (Kuhn–Tucker conditions, Blahut 1972), for every beta > 0.
+    # Here beta times the payoff differences underflows, so the objective cannot tell a spread
+    # marginal from it, and the Hessian along the simplex is singular. Mean payoffs of 6e-87,
+    # 3e-282 or 6e-169 against 0 are not ties (float64 resolves them exactly), so the best
+    # phenotype is unique, the first critical beta is infinite, and the answer is exact.
+    policy = sl.solve(np.array(payoff), [1.0], beta)
+    assert policy.status == "closed-form"
+    np.testing.assert_array_equal(policy.marginal, [0.0, 1.0, 0.0])

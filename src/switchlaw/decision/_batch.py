@@ -44,7 +44,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._marginal_newton import POLICY_RTOL, _rounding_factor
-from ._minimum_information import minimum_information_marginal
+from ._minimum_information import minimum_information_marginal, tie_tolerance
 
 #: Newton steps a problem may take in the stack before it is handed to the single solver.
 _STACK_STEPS = 40
@@ -190,13 +190,18 @@ def _stays_deterministic(u_seen, p, seen, betas, distinct):
     k, _, n = u_seen.shape
     means = np.einsum("km,kmn->kn", p, u_seen)
     means = np.where(distinct, means, -np.inf)
-    top = means.max(axis=1)
-    scale = np.maximum(1.0, np.abs(top))
-    threshold = top - 1e-12 * scale
-    best = means >= threshold[:, None]
+    star = np.argmax(means, axis=1)
+    below = np.take_along_axis(means, star[:, None], axis=1) - means
+    # Exact ties here are ties of the single solver too (its sums differ from these by less
+    # than its tie tolerance); a mean within twice that tolerance of the best, or within the
+    # old 1e-12 band, is left to the single solver, whose own sums decide.
+    magnitudes = np.einsum("km,kmn->kn", p, np.abs(u_seen))
+    tolerance = tie_tolerance(p, magnitudes, np.take_along_axis(magnitudes, star[:, None], 1))
+    best = distinct & (below == 0)
     tied = best.sum(axis=1) > 1
-    near_tie = (distinct & (np.abs(means - threshold[:, None]) <= 1e-14 * scale[:, None])).any(axis=1)
-    star = np.argmax(best, axis=1)
+    top = np.take_along_axis(means, star[:, None], axis=1)[:, 0]
+    band = np.maximum(2.0 * tolerance, 1e-12 * np.maximum(1.0, np.abs(top))[:, None])
+    near_tie = (distinct & (below > 0) & (below <= band)).any(axis=1)
     reference = np.take_along_axis(u_seen, star[:, None, None], axis=2)
     exponent = betas[:, None, None] * (u_seen - reference)
     exponent = np.where(seen[:, :, None], exponent, -np.inf)

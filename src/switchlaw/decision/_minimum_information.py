@@ -16,12 +16,28 @@ from ._inputs import check_problem
 from ._marginal_newton import MarginalResult, newton_marginal
 from ._problem import Gaps, policy_from_marginal
 
+#: Unit roundoff of float64.
+_UNIT = np.finfo(float).eps / 2
+
+
+
+def tie_tolerance(env: np.ndarray, magnitudes: np.ndarray, top) -> np.ndarray:
+    """How far below the largest mean payoff a mean counts as tied with it: twice the
+    rounding bound of the two sums ``sum_y p(y) u(y, x)`` over ``m`` states (Higham 2002,
+    §3.1, any order of summation), ``2 (m + 1) u (sum_y p |u(y,x)| + sum_y p |u(y,x*)|)``,
+    so that float64 cannot order the two means. ``magnitudes``: ``sum_y p |u(y, x)|`` per
+    phenotype (on the last axis); ``top``: that of the phenotype with the largest mean."""
+    return 2.0 * (env.shape[-1] + 1) * _UNIT * (magnitudes + top)
 
 
 def best_on_average(payoff: np.ndarray, env: np.ndarray) -> np.ndarray:
-    """Mask of the phenotypes whose mean payoff ``E[u(Y, x)]`` is largest (ties included)."""
+    """Mask of the phenotypes whose mean payoff ``E[u(Y, x)]`` is largest, with the means
+    that float64 cannot tell apart from it (:func:`tie_tolerance`): a difference of 1e-169
+    between two means of that size is a real one."""
     means = env @ payoff
-    return means >= means.max() - 1e-12 * max(1.0, abs(means.max()))
+    top = int(np.argmax(means))
+    magnitudes = env @ np.abs(payoff)
+    return means >= means[top] - tie_tolerance(env, magnitudes, magnitudes[top])
 
 
 def first_critical_beta_of(payoff: np.ndarray, env: np.ndarray) -> float:
