@@ -108,7 +108,8 @@ def first_critical_beta(payoff, env) -> float:
     Below it the cell ignores the environment and always takes ``x* = argmax_x E[u(Y, x)]``.
     Exact (root of a one-dimensional convex function; Kuhn–Tucker conditions, Blahut 1972).
     ``inf`` if ``x*`` is never left (every other phenotype is dominated), ``0`` for a tie in the
-    best mean payoff between phenotypes that differ somewhere.
+    best mean payoff between phenotypes that differ somewhere (means that float64 cannot
+    order, :func:`tie_tolerance`).
 
     Parameters
     ----------
