@@ -191,7 +191,8 @@ def _stays_deterministic(u_seen, p, seen, betas, distinct):
     means = np.einsum("km,kmn->kn", p, u_seen)
     means = np.where(distinct, means, -np.inf)
     star = np.argmax(means, axis=1)
-    below = np.take_along_axis(means, star[:, None], axis=1) - means
+    top = np.take_along_axis(means, star[:, None], axis=1)[:, 0]
+    below = top[:, None] - means
     # Exact ties here are ties of the single solver too (its sums differ from these by less
     # than its tie tolerance); a mean within twice that tolerance of the best, or within the
     # old 1e-12 band, is left to the single solver, whose own sums decide.
@@ -199,7 +200,6 @@ def _stays_deterministic(u_seen, p, seen, betas, distinct):
     tolerance = tie_tolerance(p, magnitudes, np.take_along_axis(magnitudes, star[:, None], 1))
     best = distinct & (below == 0)
     tied = best.sum(axis=1) > 1
-    top = np.take_along_axis(means, star[:, None], axis=1)[:, 0]
     band = np.maximum(2.0 * tolerance, 1e-12 * np.maximum(1.0, np.abs(top))[:, None])
     near_tie = (distinct & (below > 0) & (below <= band)).any(axis=1)
     reference = np.take_along_axis(u_seen, star[:, None, None], axis=2)

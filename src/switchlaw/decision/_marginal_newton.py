@@ -159,13 +159,35 @@ def hessian_of(problem: Reduced, ratio: np.ndarray) -> np.ndarray:
     are ``1 + O(beta)`` and the plain form buries an ``O(beta^2)`` curvature under the
     rounding of entries of order one)."""
     centred = ratio - 1.0
-    centred *= _root_p(problem)[:, None]
+    centred *= problem.root_p[:, None]
     return centred.T @ centred
 
 
-def _root_p(problem: Reduced) -> np.ndarray:
-    """``sqrt(p)``, made once per table."""
-    return problem.scratch.kept("root_p", lambda: np.sqrt(problem.p))
+def centred_gram(scaled: np.ndarray, c: np.ndarray, root_p: np.ndarray) -> np.ndarray:
+    """:func:`hessian_of` from ``scaled = sqrt(p) e / z`` (phenotypes x states; a transposed
+    view will do) and ``c = sum_y p e / z``: the plain Gram matrix minus ``c 1' + 1 c' - 1 1'``
+    (``sum p = 1``); where that cancels to fewer than six digits (small beta), formed from
+    ``sqrt(p) (e / z - 1)`` itself, ``scaled`` overwritten with it."""
+    plain = scaled @ scaled.T
+    hessian = plain - c[:, None] - c[None, :] + 1.0
+    if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
+        scaled -= root_p
+        hessian = scaled @ scaled.T
+    return hessian
+
+
+def _expm1_gaps(problem: Reduced, columns: np.ndarray, every: bool) -> np.ndarray:
+    """``expm1(beta gaps)`` on ``columns``, phenotypes x states in C order, in the work array
+    ``"m1"`` (``every``: ``columns`` is every phenotype, in order). Row by row from
+    :attr:`~._problem.Reduced.gaps_by_phenotype`: no gather of columns."""
+    by_phenotype = problem.gaps_by_phenotype
+    m1 = problem.scratch.get("m1", (columns.size, by_phenotype.shape[1]))
+    if every:
+        np.multiply(by_phenotype, problem.beta, out=m1)
+    else:
+        for i, j in enumerate(columns):
+            np.multiply(by_phenotype[j], problem.beta, out=m1[i])
+    return np.expm1(m1, out=m1)
 
 
 def _bordered_solve(
@@ -276,7 +298,7 @@ def _direction_hessian(problem: Reduced, ev: Evaluation, index: np.ndarray) -> n
     if not ev.low.any():
         inverse_z = np.exp(-ev.log_z)
         if _max(inverse_z) <= _RATIO_CAP:
-            root_p = _root_p(problem)
+            root_p = problem.root_p
             expo = problem.expo
             columns = expo if index.size == expo.shape[1] else expo[:, index]
             scaled = columns * (root_p * inverse_z)[:, None]
@@ -365,20 +387,12 @@ def kkt_residual(
         residual = _extended_residual(problem, np.flatnonzero(rows), columns, r_col)
     else:
         scratch = problem.scratch
-        shape = (problem.p.size, columns.size)
         if rows.all():
             # No copy of the table's columns (a strided gather costs several passes): the
             # residual reads the rows it needs from the whole table, and z = expo @ r with
             # r zero outside ``columns``.
             every = columns.size == r.size  # (then columns is every phenotype, in order)
-            m1_t = scratch.get("m1", shape[::-1])
-            by_phenotype = problem.gaps_by_phenotype
-            if every:
-                np.multiply(by_phenotype, problem.beta, out=m1_t)
-            else:
-                for i, j in enumerate(columns):
-                    np.multiply(by_phenotype[j], problem.beta, out=m1_t[i])
-            np.expm1(m1_t, out=m1_t)
+            m1_t = _expm1_gaps(problem, columns, every)
             residual, error = _accurate_residual(
                 problem.expo, m1_t, problem.p, r_col, problem.expo @ r, scratch,
                 None if every else columns,
@@ -456,7 +470,7 @@ def _scaled_hessian(problem: Reduced, ev: Evaluation, r: np.ndarray, support: np
                 problem.log_terms(r, ev.low)[:, support] - ev.log_z[ev.low, None]
             )
     q -= r[support]  # the centred form (see hessian_of)
-    q *= _root_p(problem)[:, None]
+    q *= problem.root_p[:, None]
     return q.T @ q
 
 
@@ -754,7 +768,7 @@ def warm_newton(
     else:
         columns = np.take(expo, support, axis=1, out=scratch.get("columns", (m, k)))
     others = None if wide or not unused.size else expo[:, unused]
-    root_p = scratch.kept("root_p", lambda: np.sqrt(p))
+    root_p = problem.root_p
     scaled = scratch.get("scaled", (m, columns.shape[1]))
     r = start[support]
     r = r / _sum(r)
@@ -806,14 +820,7 @@ def warm_newton(
             error = _plain_error(c, residual, w, z, k)
         if hessian is None or previous > _CHORD:
             np.multiply(columns, (root_p / z)[:, None], out=scaled)
-            plain = scaled.T @ scaled
-            # The centred form of hessian_of, H - c 1' - 1 c' + 1 1' (sum p = 1), from the
-            # plain one; where that cancels to fewer than six digits (small beta) it is
-            # formed from sqrt(p) (e / z - 1) itself.
-            hessian = plain - every[:, None] - every[None, :] + 1.0
-            if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
-                scaled -= root_p[:, None]
-                hessian = scaled.T @ scaled
+            hessian = centred_gram(scaled.T, every, root_p)
             if wide:
                 hessian = hessian[support][:, support]
         if accurate:
@@ -821,11 +828,7 @@ def warm_newton(
             if policy and rounding > POLICY_RTOL and not exact_form:
                 # c - 1 as formed cannot resolve the step: the form without cancellation
                 exact_form = True
-                m1 = np.take(
-                    problem.gaps_by_phenotype, support, axis=0, out=scratch.get("m1", (k, m))
-                )
-                m1 *= problem.beta
-                np.expm1(m1, out=m1)
+                m1 = _expm1_gaps(problem, support, k == n)
                 residual, error = _accurate_residual(
                     columns, m1, p, r, z, scratch, support if wide else None
                 )

@@ -13,12 +13,8 @@ from scipy.optimize import brentq
 
 from ._blahut_arimoto import blahut_arimoto_marginal
 from ._inputs import check_problem
-from ._marginal_newton import MarginalResult, newton_marginal
+from ._marginal_newton import _UNIT, MarginalResult, newton_marginal
 from ._problem import Gaps, policy_from_marginal
-
-#: Unit roundoff of float64.
-_UNIT = np.finfo(float).eps / 2
-
 
 
 def tie_tolerance(env: np.ndarray, magnitudes: np.ndarray, top) -> np.ndarray:

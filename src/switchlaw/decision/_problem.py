@@ -61,8 +61,24 @@ class Scratch:
         return flat[:size].reshape(shape)
 
 
+class _PerTable:
+    """Arrays derived once per payoff table from ``gaps`` and ``p``, kept in ``scratch``
+    (shared by :class:`Gaps` and every :class:`Reduced` it serves)."""
+
+    @property
+    def gaps_by_phenotype(self) -> np.ndarray:
+        """``gaps.T`` in C order (phenotypes x states), made once per table: a phenotype's
+        gaps are then contiguous, and sums over states are pairwise."""
+        return self.scratch.kept("gaps_t", lambda: np.ascontiguousarray(self.gaps.T))
+
+    @property
+    def root_p(self) -> np.ndarray:
+        """``sqrt(p)``, made once per table."""
+        return self.scratch.kept("root_p", lambda: np.sqrt(self.p))
+
+
 @dataclass(frozen=True)
-class Gaps:
+class Gaps(_PerTable):
     """The beta-independent part of a problem: ``u(y, x) - max_x u(y, x)`` on states with ``p(y) > 0``.
 
     Built once per payoff table and shared by every beta of a curve, which it serves one beta
@@ -100,7 +116,7 @@ class Gaps:
 
 
 @dataclass(frozen=True)
-class Reduced:
+class Reduced(_PerTable):
     """A min-information problem at one beta, restricted to states with ``p(y) > 0``.
 
     Attributes
@@ -127,12 +143,6 @@ class Reduced:
     @property
     def n_phenotypes(self) -> int:
         return self.expo.shape[1]
-
-    @property
-    def gaps_by_phenotype(self) -> np.ndarray:
-        """``gaps.T`` in C order (phenotypes x states), made once per table: a phenotype's
-        gaps are then contiguous, and sums over states are pairwise."""
-        return self.scratch.kept("gaps_t", lambda: np.ascontiguousarray(self.gaps.T))
 
     def log_terms(self, r: np.ndarray, rows: np.ndarray) -> np.ndarray:
         """``beta * gaps + log r`` on the given rows (log domain)."""

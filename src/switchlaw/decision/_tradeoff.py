@@ -19,6 +19,7 @@ from ._minimum_information import (
     minimum_information_marginal,
     solve_marginal,
 )
+from ._marginal_newton import centred_gram
 from ._problem import UNDERFLOW, Gaps, curve_policy, evaluate, max_entropy_policy
 from ._results import CriticalBeta, Tradeoff
 from ._solve import OBJECTIVES, check_problem, excess_of_log, policy_figures, solve
@@ -75,16 +76,16 @@ def kkt_root(
     if k < 1 or k > p.size:
         return None, r, 0
     scratch = gaps.scratch
-    by_phenotype = scratch.kept("gaps_t", lambda: np.ascontiguousarray(gaps.gaps.T))
     shape = (k + 1, p.size)
     # Work arrays reused from step to step (fresh ones cost the zeroing of their pages).
     table = np.take(
-        by_phenotype, np.append(support, x), axis=0, out=scratch.get("root_table", shape)
+        gaps.gaps_by_phenotype, np.append(support, x), axis=0,
+        out=scratch.get("root_table", shape),
     )
     expo = scratch.get("root_expo", shape)
     weighted = scratch.get("root_weighted", shape)
     scaled = scratch.get("root_scaled", shape)
-    root_p = scratch.kept("root_p", lambda: np.sqrt(p))
+    root_p = gaps.root_p
     system = np.empty((k + 2, k + 2))
     rhs = np.empty(k + 2)
     previous = np.inf
@@ -100,11 +101,7 @@ def kkt_root(
         mean_gap = (r @ weighted[:k]) / z
         b = weighted @ w - expo @ (w * mean_gap)
         np.multiply(expo, root_p / z, out=scaled)
-        plain = scaled @ scaled.T
-        hessian = plain - c[:, None] - c[None, :] + 1.0
-        if not (hessian.diagonal() > 1e-6 * plain.diagonal()).all():
-            scaled -= root_p  # the centred form from sqrt(p) (E / z - 1) itself (small beta)
-            hessian = scaled @ scaled.T
+        hessian = centred_gram(scaled, c, root_p)
         excess = c - 1.0
         # Unknowns: the relative changes of the masses, the multiplier, the change of beta.
         system[:k, :k] = hessian[:k, :k] * np.multiply.outer(r, r)
