@@ -75,15 +75,18 @@ class Sizes:
     transition_states: int
     bandwidth_repeats: int
     memory_states: int
+    curve_rounds: int
 
 
 FULL = Sizes(
     cvxpy_points=10, cvxpy_repeats=3, switchlaw_repeats=15, scaling_states=100_000,
     scaling_repeats=3, transition_states=500, bandwidth_repeats=21, memory_states=100_000,
+    curve_rounds=9,
 )
 QUICK = Sizes(
     cvxpy_points=4, cvxpy_repeats=1, switchlaw_repeats=7, scaling_states=20_000,
     scaling_repeats=3, transition_states=200, bandwidth_repeats=11, memory_states=20_000,
+    curve_rounds=5,
 )
 
 
@@ -577,6 +580,22 @@ def streaming_pass_seconds(m: int, n: int, repeats: int) -> float:
     return seconds
 
 
+def in_passes(fn, m: int, n: int, rounds: int) -> tuple[float, float]:
+    """Median of ``time(fn()) / time(one streaming pass)`` over ``rounds`` rounds, the pass
+    timed (median of 7) right before each call: on a shared machine the speed of both moves
+    from minute to minute, and a ratio of medians taken at different moments moves with it.
+    Also returns the median time of ``fn()`` (s)."""
+    rng = np.random.default_rng(0)
+    a, b = rng.random((m, n)), rng.random((m, n))
+    ratios, seconds = [], []
+    for _ in range(rounds):
+        unit, _ = median_seconds(lambda: (a * b).sum(), 7)
+        spent, _ = median_seconds(fn, 1)
+        ratios.append(spent / unit)
+        seconds.append(spent)
+    return float(np.median(ratios)), float(np.median(seconds))
+
+
 def counted_iterations(fn) -> int:
     """Newton iterations of every solve that ``fn()`` runs (the grid points and the search for
     the critical betas alike), and the Newton steps that locate the critical betas
@@ -627,16 +646,19 @@ def streaming_passes(seed: np.random.SeedSequence, sizes: Sizes) -> None:
                                        sizes.bandwidth_repeats)
         cold, _ = median_seconds(lambda: switchlaw.solve(payoff, env, beta), 3)
         betas = np.geomspace(1e-2, 30, 10)
-        curve_seconds, curve = median_seconds(lambda: switchlaw.tradeoff(payoff, env, betas), 3)
+        curve = switchlaw.tradeoff(payoff, env, betas)
+        curve_passes, _ = in_passes(lambda: switchlaw.tradeoff(payoff, env, betas), m, 8,
+                                    sizes.curve_rounds)
         every = counted_iterations(lambda: switchlaw.tradeoff(payoff, env, betas))
-        curve_iteration = curve_seconds / max(every, 1)
-        grid_iteration = curve_seconds / max(int(curve.iterations.sum()), 1)
-        cells = [evaluation, build, per_iteration, cold, curve_iteration, grid_iteration]
+        cells = [evaluation / unit, build / unit, per_iteration / unit, cold / unit,
+                 curve_passes / max(every, 1),
+                 curve_passes / max(int(curve.iterations.sum()), 1)]
         print(f"   {m:<12.0e}{format_seconds(unit):>10}"
-              + "".join(f"{c / unit:>10.1f}x" if i != 1 else f"{c / unit:>10.1f}x "
+              + "".join(f"{c:>10.1f}x" if i != 1 else f"{c:>10.1f}x "
                         for i, c in enumerate(cells)))
     print("   (curve it. = whole tradeoff() time, transitions located included, per Newton "
-          "iteration of all its solves;\n    grid only = the same time per iteration of the grid "
+          "iteration of all its solves,\n    its pass timed right before each run, median of "
+          f"{sizes.curve_rounds} runs;\n    grid only = the same time per iteration of the grid "
           "points alone, as if locating the transitions were free of iterations)")
 
 

@@ -73,7 +73,7 @@ def _certify(problem: Reduced, ev, r: np.ndarray, allowed: np.ndarray, tol: floa
             break
         r, ev = cleaned, cleaned_ev
         draining = np.zeros(0, dtype=int)
-    r, ev, gap, size, certified = finish(problem, ev, r, index, allowed, tol)
+    r, ev, gap, size, certified, _ = finish(problem, ev, r, index, allowed, tol)
     if certified:
         return MarginalResult(
             r, gap, iteration, True,
