@@ -769,10 +769,11 @@ def warm_newton(
     if wide or k == n:
         columns = expo
     else:
-        columns = np.take(expo, support, axis=1, out=scratch.get("columns", (m, k)))
+        columns = np.take(expo.T, support, axis=0, out=scratch.get("columns", (k, m))).T
     others = None if wide or not unused.size else expo[:, unused]
     root_p = problem.root_p
-    scaled = scratch.get("scaled", (m, columns.shape[1]))
+    # (Fortran order like the table: the scaling by a number per state runs along columns)
+    scaled = scratch.get("scaled", (columns.shape[1], m)).T
     r = start[support]
     r = r / _sum(r)
     padded = np.zeros(n) if wide else None
