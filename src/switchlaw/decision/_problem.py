@@ -95,10 +95,18 @@ class Gaps(_PerTable):
     @classmethod
     def build(cls, payoff: np.ndarray, env: np.ndarray) -> "Gaps":
         keep = env > 0
-        u = payoff[keep]
         p = env[keep]
-        row_max = u.max(axis=1)
-        return cls(p=p, gaps=u - row_max[:, None], mean_row_max=float(p @ row_max))
+        # Phenotype by phenotype (one transposed copy): each state's best payoff is then an
+        # elementwise maximum over a few long rows, not a reduction over many short ones.
+        by_phenotype = (
+            np.array(payoff.T, order="C") if keep.all()  # (a copy, never the caller's array)
+            else np.ascontiguousarray(payoff.T[:, keep])
+        )
+        row_max = np.maximum.reduce(by_phenotype, axis=0)
+        by_phenotype -= row_max
+        gaps = cls(p=p, gaps=by_phenotype.T, mean_row_max=float(p @ row_max))
+        gaps.scratch.kept("gaps_t", lambda: by_phenotype)
+        return gaps
 
     def at(self, beta: float) -> "Reduced":
         """The problem at ``beta`` (the same object again when ``beta`` is the last one)."""
@@ -127,7 +135,7 @@ class Reduced(_PerTable):
     Attributes
     ----------
     p : (m,) probabilities of the retained states.
-    gaps : (m, n) ``u(y, x) - max_x u(y, x)``, all <= 0.
+    gaps : (m, n) ``u(y, x) - max_x u(y, x)``, all <= 0 (Fortran order).
     beta : float.
     expo : (m, n) ``exp(beta * gaps)``, in ``[0, 1]`` (Fortran order: a phenotype's column is
         contiguous).

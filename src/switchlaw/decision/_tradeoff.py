@@ -423,12 +423,43 @@ class _Table:
     star_mean: float
 
     @classmethod
-    def build(cls, u: np.ndarray, p: np.ndarray) -> "_Table":
+    def build(cls, u: np.ndarray, p: np.ndarray, fortran: bool = False) -> "_Table":
+        """``fortran``: ``to_star`` in Fortran order, to match a solver's exponentials
+        (:meth:`figures_at`; the gaps are then not formed)."""
         keep = p > 0
         uk, pk = u[keep], p[keep]
         star = int(np.argmax(p @ u))
-        return cls(pk, uk - uk.max(axis=1, keepdims=True), uk - uk[:, star : star + 1],
-                   float((p @ u)[star]))
+        to_star = uk - uk[:, star : star + 1]
+        if fortran:
+            return cls(pk, None, np.asfortranarray(to_star), float((p @ u)[star]))
+        return cls(pk, uk - uk.max(axis=1, keepdims=True), to_star, float((p @ u)[star]))
+
+    def figures_at(self, problem, r: np.ndarray):
+        """The figures of :meth:`figures` for one beta from the exponentials a solve at that
+        beta left in ``problem`` (a :class:`~._problem.Reduced` over the same columns and
+        states; ``to_star`` in the same Fortran order): no exponential is formed again and
+        no ratio array unless the terms cancel. ``None`` where a partition sum underflows."""
+        expo, p, beta = problem.expo, self.p, problem.beta
+        z = expo @ r
+        if not _min(z) > UNDERFLOW:
+            return None
+        scratch = problem.scratch
+        work = scratch.get("figures", (expo.shape[1], expo.shape[0])).T
+        with np.errstate(divide="ignore"):
+            log_z = np.log(z)
+        gain = beta * (np.multiply(expo, problem.gaps_by_phenotype.T, out=work) @ r) / z
+        information = float((gain - log_z) @ p)
+        scale_i = float((np.abs(gain) + np.abs(log_z)) @ p)
+        w = p / z
+        marginal = r * (w @ expo)
+        cross = -float(marginal @ np.log(np.where(r > 0, r, 1.0)))
+        entropy = cross - information
+        if not (information > 1e-6 * scale_i and entropy > 1e-6 * (abs(cross) + scale_i)):
+            ratio = np.divide(expo, z[:, None], out=work)  # q / r
+            information = float((excess_of_log(ratio - 1.0) @ r) @ p)
+            entropy = float((entr(ratio * r) @ np.ones(r.size)) @ p)
+        payoff = self.star_mean + float((np.multiply(expo, self.to_star, out=work) @ r) @ w)
+        return (max(information, 0.0) / NATS_PER_BIT, entropy / NATS_PER_BIT, payoff), marginal
 
     def figures(self, betas: np.ndarray, marginals: np.ndarray):
         """``I`` (bits), ``H(X|Y)`` (bits), ``E[u]`` and the marginal ``sum_y p(y) q(x|y)`` of
@@ -508,6 +539,12 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
     points = []
     solved = []  # the last four solver points, as _Solved
     past_first = False
+    # A table of a chunk or more and no duplicate columns: each beta's figures from the
+    # exponentials its solve left behind, right after it (batches would hold one beta each).
+    direct = {}
+    table = None
+    if u.size >= _CHUNK and prepared.distinct.shape[1] == u.shape[1]:
+        table = _Table.build(u, p, fortran=True)
     for beta in sorted_betas:
         beta = float(beta)
         r, record, status = minimum_information_marginal(
@@ -517,10 +554,17 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
         if not closed:
             solved = solved[-3:] + [_Solved.of(beta, r)]
             past_first = True
+            if table is not None and beta > 0:
+                found = table.figures_at(prepared.gaps.at(beta), r)
+                if found is not None:
+                    direct[len(points)] = found
         points.append((beta, r, record, closed))
-    # The figures of the solver points in batches (one array operation per quantity for many
-    # betas); closed forms and underflowing partition sums go through the policy itself.
-    gibbs = [i for i, (_, _, _, closed) in enumerate(points) if not closed]
+    # The figures of the other solver points in batches (one array operation per quantity
+    # for many betas); closed forms and underflowing partition sums go through the policy.
+    gibbs = [
+        i for i, (_, _, _, closed) in enumerate(points)
+        if not closed and i not in direct and table is None
+    ]
     figures = np.zeros((0, 3))
     if gibbs:
         figures, fractions, failed = _Table.build(u, p).figures(
@@ -529,7 +573,13 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
     batched = {i: j for j, i in enumerate(gibbs) if not failed[j]}
     result = []
     for i, (beta, r, record, closed) in enumerate(points):
-        if i in batched:
+        if i in direct:
+            (information, entropy, payoff), fractions_i = direct[i]
+            result.append(_Point(
+                fractions_i, r, information, entropy, payoff, record.iterations,
+                record.converged,
+            ))
+        elif i in batched:
             j = batched[i]
             information, entropy, payoff = figures[j]
             result.append(_Point(
