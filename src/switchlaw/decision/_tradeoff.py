@@ -369,14 +369,15 @@ def tradeoff(
             solve(u, p, 1.0, reference=reference)  # raises the documented error
         ref = None
         prepared = Prepared.build(u, p)
-        sorted_points = _min_information_points(u, p, grid[order], prepared)
+        first = first_critical_beta_of(prepared.distinct, p) if u.shape[1] > 1 else math.inf
+        sorted_points = _min_information_points(u, p, grid[order], prepared, first)
     points = [None] * order.size
     for rank, i in enumerate(order):
         points[i] = sorted_points[rank]
     critical = ()
     if objective == "min-information" and u.shape[1] > 1:
         critical = _critical_betas(
-            prepared, p, grid[order], [point.marginal for point in sorted_points]
+            prepared, p, grid[order], [point.marginal for point in sorted_points], first
         )
     return Tradeoff(
         betas=grid,
@@ -529,16 +530,17 @@ def _max_entropy_point(u, p, beta: float, reference) -> _Point:
     return _point(u, p, beta, q, np.full(u.shape[1], np.nan), None, 0, True)
 
 
-def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
+def _min_information_points(u, p, sorted_betas, prepared: Prepared, first: float) -> list:
     """Min-information solutions along increasing betas, each warm-started from the last.
 
     The steps of :func:`switchlaw.solve` at each beta, with the problem's set-up shared and
-    the deterministic test skipped past the first beta that needs the solver. Each policy is
-    formed, summarised and dropped (the curve rebuilds it on request).
+    the deterministic test replaced by the first critical beta ``first``. Each policy is
+    formed, summarised and dropped (the curve rebuilds it on request); a closed form (one
+    phenotype, or its duplicates, or beta zero) is the same marginal in every state, so its
+    figures need no policy.
     """
     points = []
     solved = []  # the last four solver points, as _Solved
-    past_first = False
     # A table of a chunk or more and no duplicate columns: each beta's figures from the
     # exponentials its solve left behind, right after it (batches would hold one beta each).
     direct = {}
@@ -548,12 +550,11 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
     for beta in sorted_betas:
         beta = float(beta)
         r, record, status = minimum_information_marginal(
-            u, p, beta, start=_predict(solved, beta), prepared=prepared, past_first=past_first
+            u, p, beta, start=_predict(solved, beta), prepared=prepared, first=first
         )
         closed = status == "closed-form"
         if not closed:
             solved = solved[-3:] + [_Solved.of(beta, r)]
-            past_first = True
             if table is not None and beta > 0:
                 found = table.figures_at(prepared.gaps.at(beta), r)
                 if found is not None:
@@ -571,6 +572,7 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
             np.array([points[i][0] for i in gibbs]), np.stack([points[i][1] for i in gibbs])
         )
     batched = {i: j for j, i in enumerate(gibbs) if not failed[j]}
+    means = p @ u
     result = []
     for i, (beta, r, record, closed) in enumerate(points):
         if i in direct:
@@ -586,10 +588,16 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared) -> list:
                 fractions[j], r, information, entropy, payoff, record.iterations,
                 record.converged,
             ))
+        elif closed:
+            # q(x|y) = r(x) in every state: no information, H(X|Y) = H(r)
+            result.append(_Point(
+                r, r, 0.0, float(entr(r).sum()) / NATS_PER_BIT, float(r @ means),
+                record.iterations, record.converged,
+            ))
         else:
             q = curve_policy(u, beta, "min-information", r)
             result.append(
-                _point(u, p, beta, q, r, r if closed else None, record.iterations, record.converged)
+                _point(u, p, beta, q, r, None, record.iterations, record.converged)
             )
     return result
 
@@ -644,15 +652,16 @@ def _predict(solved: list, beta: float) -> np.ndarray | None:
     return start / total if math.isfinite(total) and total > 0 else last.marginal
 
 
-def _critical_betas(prepared: Prepared, p, grid, sorted_marginals) -> tuple:
-    """Locate support changes between consecutive grid betas (distinct phenotypes only)."""
+def _critical_betas(prepared: Prepared, p, grid, sorted_marginals, first: float) -> tuple:
+    """Locate support changes between consecutive grid betas (distinct phenotypes only);
+    ``first`` is the first critical beta."""
     distinct, inverse = prepared.distinct, prepared.inverse
     locator = _Locator(prepared, p)
     merged = prepared.merge
 
     # The first transition has a closed form (Kuhn–Tucker conditions): add it to the points
     # between which changes are located, so that it is never missed, and report it exactly.
-    first = locator.first = first_critical_beta_of(distinct, p)
+    locator.first = first
     points = [(float(b), merged(r)) for b, r in zip(grid, sorted_marginals)]
     if grid[0] < first < grid[-1]:
         points.append((first, locator.full(first, None)))
