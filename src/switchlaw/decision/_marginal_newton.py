@@ -419,25 +419,41 @@ def kkt_residual(
 def _extended_residual(problem: Reduced, rows: np.ndarray, columns: np.ndarray, r: np.ndarray):
     """The linear-domain rows of :func:`kkt_residual` in extended precision, one
     transcendental per entry: ``expm1`` where the row's partition sum is near one (there
-    ``z = S + expm1 @ r``), ``exp`` elsewhere."""
+    ``z = S + expm1 @ r``), ``exp`` elsewhere. Phenotype by phenotype (contiguous rows); the
+    transcendentals, the costly part (extended precision has no vector ``exp``), are kept
+    for the next call at the same beta (a finish takes several steps there)."""
     ld = np.longdouble
-    beta = ld(problem.beta)
+    beta = problem.beta
     r_ext = r.astype(ld)
     total = r_ext.sum()
-    near = problem.expo[np.ix_(rows, columns)] @ r >= 0.5  # which form; either is exact
+    near = (problem.expo[:, columns] @ r)[rows] >= 0.5  # which form; either is exact
+
+    def tables():
+        by_phenotype = problem.gaps_by_phenotype[columns]
+        if rows.size < by_phenotype.shape[1]:
+            by_phenotype = by_phenotype[:, rows]
+        exponents = by_phenotype.astype(ld)
+        exponents *= ld(beta)
+        if near.all():
+            return np.expm1(exponents, out=exponents), exponents[:, :0]
+        if not near.any():
+            return exponents[:, :0], np.exp(exponents, out=exponents)
+        return np.expm1(exponents[:, near]), np.exp(exponents[:, ~near])
+
+    key = (beta, columns.tobytes(), rows.tobytes(), near.tobytes())
+    m1, e = problem.scratch.latest("extended", key, tables)
+    p = problem.p[rows]
     residual = np.zeros(columns.size, dtype=ld)
-    if near.any():
-        m = np.expm1(beta * problem.gaps[np.ix_(rows[near], columns)].astype(ld))
-        m_r = m @ r_ext
-        m *= total
-        m -= m_r[:, None]
-        residual += (problem.p[rows[near]].astype(ld) / (total + m_r)) @ m
-    if not near.all():
-        e = np.exp(beta * problem.gaps[np.ix_(rows[~near], columns)].astype(ld))
-        z = e @ r_ext
-        e *= total
-        e -= z[:, None]
-        residual += (problem.p[rows[~near]].astype(ld) / z) @ e
+    if m1.shape[1]:
+        m_r = r_ext @ m1
+        numerator = m1 * total
+        numerator -= m_r
+        residual += numerator @ (p[near].astype(ld) / (total + m_r))
+    if e.shape[1]:
+        z = r_ext @ e
+        numerator = e * total
+        numerator -= z
+        residual += numerator @ (p[~near].astype(ld) / z)
     return residual
 
 

@@ -37,11 +37,22 @@ class Scratch:
     a named work array is allocated once and handed out again, as a view of the needed shape.
     """
 
-    __slots__ = ("_flat", "_kept")
+    __slots__ = ("_flat", "_kept", "_latest")
 
     def __init__(self) -> None:
         self._flat: dict[str, np.ndarray] = {}
         self._kept: dict[str, np.ndarray] = {}
+        self._latest: dict[str, tuple] = {}
+
+    def latest(self, name: str, key, make):
+        """``make()``, computed again only when ``key`` differs from the last call with
+        ``name`` (one value per name is kept: for tables that depend on beta)."""
+        found = self._latest.get(name)
+        if found is not None and found[0] == key:
+            return found[1]
+        value = make()
+        self._latest[name] = (key, value)
+        return value
 
     def kept(self, name: str, make) -> np.ndarray:
         """``make()``, computed on the first call with ``name`` and kept (for arrays derived

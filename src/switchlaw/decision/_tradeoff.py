@@ -161,7 +161,7 @@ class _Locator:
             self.payoff, np.arange(self.n), np.ones(self.n, dtype=int), prepared.gaps
         )
         #: The first critical beta (closed form, set by the caller): a phenotype enters
-        #: exactly there, and above it no solve needs the test for one phenotype.
+        #: exactly there; up to it the optimum is one phenotype, with no test.
         self.first = math.inf
 
     # Both searches below use c(x) and the support only, never a policy: their solves are
@@ -170,7 +170,7 @@ class _Locator:
     def full(self, beta: float, start: np.ndarray | None) -> np.ndarray:
         r, _, _ = minimum_information_marginal(
             self.payoff, self.env, beta, start=start, prepared=self.identity, policy=False,
-            past_first=beta > self.first,
+            first=self.first,
         )
         return r
 
@@ -456,9 +456,11 @@ class _Table:
         cross = -float(marginal @ np.log(np.where(r > 0, r, 1.0)))
         entropy = cross - information
         if not (information > 1e-6 * scale_i and entropy > 1e-6 * (abs(cross) + scale_i)):
-            ratio = np.divide(expo, z[:, None], out=work)  # q / r
-            information = float((excess_of_log(ratio - 1.0) @ r) @ p)
-            entropy = float((entr(ratio * r) @ np.ones(r.size)) @ p)
+            # the elementwise forms, on the phenotypes in use (the others add zeros)
+            used = np.flatnonzero(r > 0)
+            ratio = np.divide(expo[:, used], z[:, None])  # q / r
+            information = float((excess_of_log(ratio - 1.0) @ r[used]) @ p)
+            entropy = float((entr(ratio * r[used]) @ np.ones(used.size)) @ p)
         payoff = self.star_mean + float((np.multiply(expo, self.to_star, out=work) @ r) @ w)
         return (max(information, 0.0) / NATS_PER_BIT, entropy / NATS_PER_BIT, payoff), marginal
 
