@@ -331,7 +331,7 @@ def _direction(problem: Reduced, ev: Evaluation, r: np.ndarray, index: np.ndarra
     # c - 1 instead of c on the right-hand side: the constant only shifts the multiplier of
     # sum r = 1, and near the optimum it would swamp the differences that set the step.
     excess = c - 1.0
-    on_support = hessian[np.ix_(support, support)]
+    on_support = hessian if support.all() else hessian[np.ix_(support, support)]
     if not (c[~support] > 1.0 + tol).any():
         step = _support_newton_step(r[support], excess[support], on_support)
         if _usable(step, r[support], excess[support]):

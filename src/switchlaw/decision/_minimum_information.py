@@ -232,16 +232,13 @@ def _unique_phenotypes(payoff: np.ndarray, env: np.ndarray | None = None):
     # Two columns are compared in full only where they agree on a few states first.
     kept_rows = np.flatnonzero(keep)
     sample = payoff[kept_rows[:8]]
+    agree = (sample[:, :, None] == sample[:, None, :]).all(axis=0)
     group = np.arange(n)
-    for j in range(1, n):
-        for i in range(j):
-            if (
-                group[i] == i
-                and np.array_equal(sample[:, i], sample[:, j])
-                and np.array_equal(payoff[kept_rows, i], payoff[kept_rows, j])
-            ):
-                group[j] = i
-                break
+    for j, i in zip(*np.nonzero(np.tril(agree, -1))):  # (row-major: j ascending, then i)
+        if group[j] == j and group[i] == i and np.array_equal(
+            payoff[kept_rows, i], payoff[kept_rows, j]
+        ):
+            group[j] = i
     firsts = np.flatnonzero(group == np.arange(n))
     rank = np.empty(n, dtype=int)
     rank[firsts] = np.arange(firsts.size)

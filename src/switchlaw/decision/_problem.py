@@ -205,8 +205,7 @@ def log_partition(problem: Reduced, r: np.ndarray) -> tuple[np.ndarray, np.ndarr
     """
     z = problem.expo @ r
     low = ~(z > UNDERFLOW)
-    with np.errstate(divide="ignore"):
-        log_z = np.log(z)
+    log_z = np.log(np.maximum(z, UNDERFLOW))  # (rows below are replaced just after)
     if low.any():
         log_z[low] = logsumexp(problem.log_terms(r, low), axis=1)
     return log_z, low
@@ -220,9 +219,13 @@ def objective(problem: Reduced, r: np.ndarray) -> float:
 def evaluate(problem: Reduced, r: np.ndarray) -> Evaluation:
     """Objective and ``c(x) = sum_y p(y) exp(beta u(y,x)) / Z(y)`` at ``r``."""
     log_z, low = log_partition(problem, r)
-    weights = np.where(low, 0.0, problem.p * np.exp(-np.where(low, 0.0, log_z)))
+    any_low = low.any()
+    if any_low:
+        weights = np.where(low, 0.0, problem.p * np.exp(-np.where(low, 0.0, log_z)))
+    else:
+        weights = problem.p * np.exp(-log_z)
     c = problem.expo.T @ weights
-    if low.any():
+    if any_low:
         with np.errstate(over="ignore"):
             extra = np.exp(problem.beta * problem.gaps[low] - log_z[low, None])
         c = c + problem.p[low] @ np.minimum(extra, _BIG)
