@@ -71,6 +71,31 @@ def test_curve_matches_pointwise_solves_in_any_order(rng):
     assert curve.converged.all()
 
 
+@pytest.mark.parametrize("duplicate", [False, True])
+def test_large_curve_figures_match_the_policies_of_pointwise_solves(rng, duplicate):
+    # Tables of 2**15 numbers or more take each point's figures from its solve's own
+    # exponentials (duplicate columns: the batched figures); both must give what the
+    # policy of a separate solve gives (information without cancellation, Cover & Thomas
+    # eq. 2.28; H(X|Y) and E[u] of the policy itself). Betas from below the first critical
+    # one, where the information is tiny, to far above it; 1e-25 bits absolute, because at
+    # the critical beta itself a solve may leave a mass at rounding level (1e-31 bits seen),
+    # and a form that cancels would be off by about 1e-17.
+    payoff = rng.normal(size=(5000, 8))
+    if duplicate:
+        payoff[:, 7] = payoff[:, 2]
+    env = rng.dirichlet(np.ones(5000))
+    first = sl.first_critical_beta(payoff, env)
+    betas = np.array([0.5, 1.0, 1.0 + 1e-6, 1.01, 1.5, 4.0, 40.0, 400.0]) * first
+    curve = sl.tradeoff(payoff, env, betas)
+    for i, beta in enumerate(betas):
+        single = sl.solve(payoff, env, beta)
+        for name in ("information_bits", "conditional_entropy_bits", "expected_payoff"):
+            value, expected = getattr(curve, name)[i], getattr(single, name)
+            assert value == pytest.approx(expected, rel=1e-9, abs=1e-25), (name, beta)
+        np.testing.assert_allclose(curve.marginals[i], single.marginal, rtol=1e-9, atol=1e-15)
+    assert curve.converged.all()
+
+
 def test_information_and_payoff_rise_with_beta(rng):
     # Rate–distortion curves are monotone (Cover & Thomas §10.2).
     payoff = rng.normal(size=(50, 6))
