@@ -206,6 +206,39 @@ def test_first_critical_beta_next_to_a_tie_in_the_means(seed, mean_gap):
     assert abs(beta - float(root)) <= 50 * np.finfo(float).eps * condition * float(root)
 
 
+@pytest.mark.parametrize("eps", [1e-3, 5e-3])
+def test_next_to_a_tie_in_the_means_a_solve_takes_the_second_phenotype(eps):
+    # Mean payoffs 1e-6 apart on a spread of one: just past the first critical beta the
+    # second phenotype's exact mass (the Kuhn–Tucker root at 40 digits) is 5e-4 to 2.5e-3;
+    # the former test of the one-phenotype policy (1e-14 on log c) called it zero there. A
+    # solve and a curve must both give the exact policy.
+    rng = np.random.default_rng(0)
+    m = 300
+    base, z, env = rng.normal(size=m), rng.normal(size=m), rng.dirichlet(np.ones(m))
+    z -= env @ z
+    payoff = np.column_stack([base, base + z - 1e-6])
+    beta = sl.first_critical_beta(payoff, env) * (1 + eps)
+    mass, exact = kuhn_tucker_root(payoff, env, beta, 0, 1)
+    policy = sl.solve(payoff, env, beta)
+    assert policy.status == "converged"
+    np.testing.assert_allclose(policy.probs, exact, rtol=1e-8, atol=0)
+    curve = sl.tradeoff(payoff, env, [beta])
+    assert curve.marginals[0][1] == pytest.approx(mass, rel=1e-8)
+
+
+def test_critical_beta_does_not_depend_on_the_payoff_unit():
+    # beta_c scales as 1 / unit (the objective depends on beta * u only), down to units of
+    # 1e-300 and up to 1e300 (the search runs in a power-of-two unit of the differences).
+    rng = np.random.default_rng(7)
+    for _ in range(20):
+        payoff, env = rng.normal(size=(50, 3)), rng.dirichlet(np.ones(50))
+        reference = sl.first_critical_beta(payoff, env)
+        for unit in (1e-300, 1e-200, 1e200, 1e300):
+            assert sl.first_critical_beta(payoff * unit, env) * unit == pytest.approx(
+                reference, rel=1e-12
+            )
+
+
 def test_every_transition_keeps_its_digits_in_small_and_large_units():
     # The objective depends on beta * u only, so beta_k * unit is the same for every unit
     # (common practice, no source: a change of units is a symmetry of the problem).

@@ -44,7 +44,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._marginal_newton import POLICY_RTOL, _rounding_factor
-from ._minimum_information import minimum_information_marginal, tie_tolerance
+from ._minimum_information import (
+    deterministic_excess,
+    minimum_information_marginal,
+    tie_tolerance,
+)
 
 #: Newton steps a problem may take in the stack before it is handed to the single solver.
 _STACK_STEPS = 40
@@ -65,8 +69,9 @@ _BOUNDARY = 0.9
 #: ``F``: the full step is taken (as in the single solver).
 _FLOOR = 1e-13
 #: The Kuhn–Tucker test for a single phenotype is recomputed by the single solver when its
-#: value is this close (nats) to the threshold (1e-14) of ``stays_deterministic``.
-_NEAR_THRESHOLD = 1e-13
+#: value is within this many times its rounding bound of zero (the threshold of
+#: ``stays_deterministic``).
+_NEAR_THRESHOLD = 4.0
 
 
 @dataclass(frozen=True)
@@ -202,16 +207,14 @@ def _stays_deterministic(u_seen, p, seen, betas, distinct):
     tied = best.sum(axis=1) > 1
     band = np.maximum(2.0 * tolerance, 1e-12 * np.maximum(1.0, np.abs(top))[:, None])
     near_tie = (distinct & (below > 0) & (below <= band)).any(axis=1)
-    reference = np.take_along_axis(u_seen, star[:, None, None], axis=2)
-    exponent = betas[:, None, None] * (u_seen - reference)
-    exponent = np.where(seen[:, :, None], exponent, -np.inf)
-    peak = exponent.max(axis=1)
-    with np.errstate(under="ignore"):
-        log_c = peak + np.log(np.einsum("km,kmn->kn", p, np.exp(exponent - peak[:, None, :])))
+    # The test of the single solver (its expm1 form and rounding bound); states not seen
+    # have p = 0 here. Where a value is within a few times its bound of that threshold the
+    # two summation orders could disagree: the single solver decides.
+    excess, bound = deterministic_excess(u_seen, p, star, betas)
     others = distinct & (np.arange(n) != star[:, None])
-    log_c = np.where(others, log_c, -np.inf).max(axis=1)  # the best phenotype's own is 0
-    deterministic = ~tied & (log_c <= 1e-14)
-    borderline = near_tie | (np.abs(log_c - 1e-14) <= _NEAR_THRESHOLD)
+    deterministic = ~tied & np.where(others, excess <= bound, True).all(axis=1)
+    unsure = others & (np.abs(excess) <= _NEAR_THRESHOLD * bound)
+    borderline = near_tie | unsure.any(axis=1)
     return deterministic, star, borderline
 
 

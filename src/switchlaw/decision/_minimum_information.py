@@ -70,11 +70,15 @@ def first_critical_beta_of(payoff: np.ndarray, env: np.ndarray) -> float:
     deltas = deltas[candidates]
     if ((deltas @ p) >= 0).any():  # equal means but a different payoff: enters at once
         return 0.0
+    # In units of a power of two near the largest difference (exact): the search then runs
+    # the same in any payoff unit, and beta delta neither overflows nor underflows.
+    unit = 2.0 ** math.floor(math.log2(float(np.abs(deltas).max())))
+    deltas /= unit
     roots = _roots_from_above(deltas, p)
     for row, root in enumerate(roots):
         if root is None:
             roots[row] = _bracketed_root(deltas[row], p)
-    return float(min(roots))
+    return float(min(roots)) / unit
 
 
 _max = np.maximum.reduce
@@ -151,23 +155,45 @@ def _bracketed_root(delta: np.ndarray, p: np.ndarray) -> float:
                         rtol=4 * np.finfo(float).eps))
 
 
+def deterministic_excess(u: np.ndarray, p: np.ndarray, star, beta) -> tuple:
+    """``g_x(beta) = sum_y p(y) expm1(beta (u(y,x) - u(y,x*)))`` on the last axis (the
+    Kuhn–Tucker test of the one-phenotype policy on ``x*``: it is optimal while every
+    ``g_x <= 0``), and a bound on the rounding error of each: ``2 (m + 2) u`` times the sum of
+    the terms' magnitudes (Higham 2002, §3.1; ``expm1`` and the product add two roundings).
+    ``u``: states x phenotypes (a leading axis of problems allowed), ``star`` the index of
+    ``x*`` (per problem), ``beta`` a number (per problem)."""
+    reference = np.take_along_axis(u, np.reshape(star, np.shape(star) + (1, 1)), axis=-1)
+    exponent = np.reshape(beta, np.shape(beta) + (1, 1)) * (u - reference)
+    with np.errstate(over="ignore"):
+        terms = np.expm1(np.minimum(exponent, _EXPONENT_CAP))
+    excess = np.einsum("...m,...mn->...n", p, terms)
+    bound = 2.0 * (u.shape[-2] + 2) * _UNIT * np.einsum("...m,...mn->...n", p, np.abs(terms))
+    return excess, bound
+
+
 def stays_deterministic(payoff: np.ndarray, env: np.ndarray, beta: float) -> bool:
     """Whether the single best-on-average phenotype is optimal at ``beta`` (Kuhn–Tucker test).
 
-    ``sum_y p(y) exp(beta (u(y,x) - u(y,x*))) <= 1`` for every ``x`` (Blahut 1972); a tie in the
-    best mean payoff between different columns fails the test for every ``beta > 0``.
+    ``sum_y p(y) exp(beta (u(y,x) - u(y,x*))) <= 1`` for every ``x`` (Blahut 1972), tested as
+    ``sum_y p(y) expm1(beta (u(y,x) - u(y,x*))) <= 0`` (:func:`deterministic_excess`): next
+    to a tie in the mean payoffs the left side minus one is tiny beside its terms, and a fixed
+    tolerance on its logarithm (formerly 1e-14) kept one phenotype up to 0.5 % past the first
+    critical beta. Where a sum is within its rounding bound of zero, ``beta`` is compared with
+    :func:`first_critical_beta_of` instead, so that a solve and a curve split at the same
+    beta. A tie in the best mean payoff between different columns fails the test for every
+    ``beta > 0``.
     """
     keep = env > 0
     u, p = payoff[keep], env[keep]
     best = best_on_average(u, p)
     if best.sum() > 1:
         return False
-    star = int(np.argmax(best))
-    exponent = beta * (u - u[:, star : star + 1])
-    top = exponent.max(axis=0)
-    with np.errstate(under="ignore"):
-        log_c = top + np.log(p @ np.exp(exponent - top))
-    return bool(np.all(log_c <= 1e-14))
+    excess, bound = deterministic_excess(u, p, int(np.argmax(best)), beta)
+    if (excess > bound).any():
+        return False
+    if (excess <= -bound).all():
+        return True
+    return bool(beta <= first_critical_beta_of(payoff, env))
 
 
 def first_critical_beta(payoff, env) -> float:
@@ -229,16 +255,20 @@ def _unique_phenotypes(payoff: np.ndarray, env: np.ndarray | None = None):
     """
     n = payoff.shape[1]
     keep = np.ones(payoff.shape[0], dtype=bool) if env is None else env > 0
-    # Two columns are compared in full only where they agree on a few states first.
+    # Two columns are compared in full only where they agree on a few states first (their
+    # sampled entries as bytes, -0.0 made +0.0, which compares equal to it).
     kept_rows = np.flatnonzero(keep)
-    sample = payoff[kept_rows[:8]]
-    agree = (sample[:, :, None] == sample[:, None, :]).all(axis=0)
+    sample = np.ascontiguousarray((payoff[kept_rows[:8]] + 0.0).T)
     group = np.arange(n)
-    for j, i in zip(*np.nonzero(np.tril(agree, -1))):  # (row-major: j ascending, then i)
-        if group[j] == j and group[i] == i and np.array_equal(
-            payoff[kept_rows, i], payoff[kept_rows, j]
-        ):
-            group[j] = i
+    firsts_by_sample: dict = {}
+    for j in range(n):
+        key = sample[j].tobytes()
+        for i in firsts_by_sample.get(key, ()):
+            if np.array_equal(payoff[kept_rows, i], payoff[kept_rows, j]):
+                group[j] = i
+                break
+        else:
+            firsts_by_sample.setdefault(key, []).append(j)
     firsts = np.flatnonzero(group == np.arange(n))
     rank = np.empty(n, dtype=int)
     rank[firsts] = np.arange(firsts.size)
