@@ -143,7 +143,7 @@ def solve_stack(payoff, env, beta, *, starts=None, tol: float = 1e-12) -> StackS
     first, counts = _groups(u_seen)
     distinct = first == np.arange(n)
     single = betas == 0  # closed form of the single solver (every best-on-average phenotype)
-    deterministic, star, borderline = _stays_deterministic(u_seen, p, seen, betas, distinct)
+    deterministic, star, borderline = _stays_deterministic(u_seen, p, betas, distinct)
     single |= borderline
     closed = deterministic & ~single
     marginals[closed] = (first[closed] == star[closed, None]) / counts[closed]
@@ -186,13 +186,13 @@ def _groups(u_seen: np.ndarray):
     return first, np.take_along_axis(counts, first, axis=1)
 
 
-def _stays_deterministic(u_seen, p, seen, betas, distinct):
+def _stays_deterministic(u_seen, p, betas, distinct):
     """The Kuhn–Tucker test of ``stays_deterministic`` on every problem at once.
 
     Returns the problems that keep one phenotype, that phenotype, and the problems too close
     to either threshold of the test to decide here (they go to the single solver).
     """
-    k, _, n = u_seen.shape
+    n = u_seen.shape[2]
     means = np.einsum("km,kmn->kn", p, u_seen)
     means = np.where(distinct, means, -np.inf)
     star = np.argmax(means, axis=1)

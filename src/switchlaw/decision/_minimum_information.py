@@ -350,7 +350,6 @@ def minimum_information_marginal(
     tol: float = 1e-12,
     max_iter: int | None = None,
     prepared: Prepared | None = None,
-    past_first: bool = False,
     policy: bool = True,
     first: float | None = None,
 ) -> tuple[np.ndarray, MarginalResult, str]:
@@ -358,12 +357,10 @@ def minimum_information_marginal(
 
     Returns the marginal over the original phenotypes, the solver record, and ``status``.
     ``prepared`` is ``Prepared.build(payoff, env)`` when the caller already has it;
-    ``past_first`` says that the caller knows ``beta`` to be above the first critical beta
-    (along increasing betas, once one beta is: the test of :func:`stays_deterministic` is
-    a convex function of beta equal to one at zero, so it stays above one). ``first``: the
-    first critical beta (:func:`first_critical_beta_of`) when the caller has it; then the
-    closed form holds exactly up to it, without the test. ``policy=False`` certifies the
-    objective only (see :func:`solve_marginal`).
+    ``first``: the first critical beta (:func:`first_critical_beta_of`) when the caller has
+    it; then the closed form holds exactly up to it, without the test of
+    :func:`stays_deterministic`. ``policy=False`` certifies the objective only (see
+    :func:`solve_marginal`).
     """
     n = payoff.shape[1]
     if n == 1:
@@ -375,10 +372,7 @@ def minimum_information_marginal(
         return r, record, "closed-form"
     prepared = prepared or Prepared.build(payoff, env)
     distinct = prepared.distinct
-    if (
-        beta <= first if first is not None
-        else not past_first and stays_deterministic(distinct, env, beta)
-    ):
+    if beta <= first if first is not None else stays_deterministic(distinct, env, beta):
         r_distinct = np.zeros(distinct.shape[1])
         r_distinct[int(np.argmax(best_on_average(distinct, env)))] = 1.0
         record = MarginalResult(

@@ -562,11 +562,11 @@ def _min_information_points(u, p, sorted_betas, prepared: Prepared, first: float
                 if found is not None:
                     direct[len(points)] = found
         points.append((beta, r, record, closed))
-    # The figures of the other solver points in batches (one array operation per quantity
-    # for many betas); closed forms and underflowing partition sums go through the policy.
-    gibbs = [
-        i for i, (_, _, _, closed) in enumerate(points)
-        if not closed and i not in direct and table is None
+    # Smaller tables: the figures of the solver points in batches (one array operation per
+    # quantity for many betas). Closed forms take theirs below; underflowing partition sums
+    # (either path) go through the policy itself.
+    gibbs = [] if table is not None else [
+        i for i, (_, _, _, closed) in enumerate(points) if not closed
     ]
     figures = np.zeros((0, 3))
     if gibbs:
